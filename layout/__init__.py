@@ -1,0 +1,22 @@
+"""layout: seeded randomization, checkable codes and field sheets for experiments with subsampling."""
+
+from __future__ import annotations
+
+__version__ = "0.1.0"
+
+from layout.errors import LayoutError, PlanError, SpecError  # noqa: E402
+from layout.plan import Plan, load_plan, make_plan  # noqa: E402
+from layout.spec import Spec, load_spec, loads_spec  # noqa: E402
+
+__all__ = [
+    "LayoutError",
+    "Plan",
+    "PlanError",
+    "Spec",
+    "SpecError",
+    "__version__",
+    "load_plan",
+    "load_spec",
+    "loads_spec",
+    "make_plan",
+]

@@ -1,0 +1,131 @@
+"""The layout command: argument parsing and printing over the library functions."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from collections import Counter
+from collections.abc import Callable, Sequence
+from pathlib import Path
+
+from rich.console import Console
+from rich.table import Table
+
+from layout import __version__
+from layout.demo import run_demo
+from layout.errors import LayoutError
+from layout.plan import Plan, make_plan
+from layout.spec import load_spec
+
+# Markup off: titles, labels and messages are the user's text and may hold brackets.
+out = Console(highlight=False, markup=False)
+err = Console(stderr=True, highlight=False, markup=False)
+
+_EPILOG_PLAN = """example:
+  layout plan examples/greenhouse-biochar-crd.toml -o plan.json
+  layout plan field.toml --seed 20260415 -o field-plan.json
+
+Without a seed in the spec or on the command line, one is drawn from the
+operating system, printed and recorded in the plan. An existing plan is never
+replaced without --force: re-randomizing must be deliberate."""
+
+_EPILOG_DEMO = """example:
+  layout demo              # into ./layout-demo
+  layout demo /tmp/trial   # into another folder"""
+
+
+def print_plan_summary(plan: Plan, path: Path | None) -> None:
+    """The plan at a glance: treatments × replicates, counts, seed and fingerprint."""
+    spec = plan.spec
+    out.print(f"{spec.study.id}: {spec.study.title}", style="bold")
+    table = Table()
+    table.add_column("treatment")
+    table.add_column(f"{spec.design.unit_name}s", justify="right")
+    counts = Counter(u.treatment for u in plan.units)
+    for label in spec.treatments:
+        table.add_row(label, str(counts[label]))
+    out.print(table)
+    d = spec.design
+    blocks = f", {d.blocks} blocks" if d.blocks else ""
+    out.print(f"design      {d.type}{blocks}, {len(spec.treatments)} treatments")
+    out.print(f"units       {len(plan.units)} {d.unit_name}s × {d.subsamples} {d.subsample_name}s = {len(plan.slots)} slots")
+    out.print(f"rounds      {', '.join(r.name for r in plan.rounds)} (order: {spec.collection.order})")
+    out.print(f"seed        {plan.seed}")
+    out.print(f"fingerprint {plan.fingerprint}")
+    if path is not None:
+        out.print(f"written     {path}")
+
+
+def _plan(args: argparse.Namespace) -> int:
+    spec = load_spec(args.spec)
+    plan = make_plan(spec, seed=args.seed)
+    path = plan.save(args.output, force=args.force)
+    if args.seed is None and spec.study.seed is None:
+        out.print(f"No seed was given; drew {plan.seed} and recorded it in the plan.", style="bold")
+    print_plan_summary(plan, path)
+    return 0
+
+
+def _demo(args: argparse.Namespace) -> int:
+    result = run_demo(args.folder, force=args.force)
+    print_plan_summary(result.plan, None)
+    out.print(f"\nThe demo wrote {len(result.written)} files into {result.folder}:")
+    for path in result.written:
+        out.print(f"  {path}")
+    return 0
+
+
+def _seed(text: str) -> int:
+    try:
+        value = int(text, 10)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a whole number from 0 to 2^64-1, got {text!r}") from None
+    if not 0 <= value < 2**64:
+        raise argparse.ArgumentTypeError(f"must be a whole number from 0 to 2^64-1, got {text!r}")
+    return value
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The command-line grammar."""
+    parser = argparse.ArgumentParser(
+        prog="layout",
+        description="Seeded randomization, checkable codes, field sheets and checks for experiments with subsampling.",
+        epilog="example:\n  layout demo\n  layout plan spec.toml -o plan.json\n\nEach command has its own --help.",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    parser.add_argument("--version", action="version", version=f"layout {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
+
+    demo = sub.add_parser("demo", help="run the built-in invented example end to end", epilog=_EPILOG_DEMO,
+                          formatter_class=argparse.RawDescriptionHelpFormatter)
+    demo.add_argument("folder", nargs="?", default="layout-demo", metavar="DIR", help="where to write (default: ./layout-demo)")
+    demo.add_argument("--force", action="store_true", help="replace files a previous demo wrote")
+    demo.set_defaults(run=_demo)
+
+    plan = sub.add_parser("plan", help="randomize a design spec into plan.json", epilog=_EPILOG_PLAN,
+                          formatter_class=argparse.RawDescriptionHelpFormatter)
+    plan.add_argument("spec", metavar="SPEC", help="the design spec (.toml, or .json with the same keys)")
+    plan.add_argument("-o", "--output", default="plan.json", help="the plan file to write (default: plan.json)")
+    plan.add_argument("--seed", type=_seed, help="the seed; overrides the spec's")
+    plan.add_argument("--force", action="store_true", help="replace an existing plan (re-randomizes!)")
+    plan.set_defaults(run=_plan)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the layout command; returns the exit code."""
+    args = build_parser().parse_args(argv)
+    run: Callable[[argparse.Namespace], int] = args.run
+    try:
+        return run(args)
+    except LayoutError as exc:
+        for line in exc.lines():
+            err.print(f"error: {line}", style="red", soft_wrap=True)
+        return exc.exit_code
+    except KeyboardInterrupt:
+        err.print("interrupted")
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())

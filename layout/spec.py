@@ -1,0 +1,291 @@
+"""Load and validate a design spec (TOML or JSON) into frozen objects.
+
+Parse, then convert, then validate: tomllib/json give dicts, pydantic checks shapes and
+types, and ``design_rules`` checks what depends on several keys at once. Every problem
+is collected and reported together, each naming the file and the key path.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+import tomllib
+from pathlib import Path
+from typing import Any, Final, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, StrictBool, StrictFloat, StrictInt, StrictStr, ValidationError, field_validator
+
+from layout.errors import Problem, SpecError
+from layout.spec_messages import problems_from_validation, toml_problem
+from layout.spec_rules import design_rules
+
+DESIGN_TYPES: Final = ("crd", "rcbd", "latin-square", "split-plot")
+RESPONSE_KINDS: Final = ("number", "integer", "category", "text", "date")
+DEFAULT_MISSING_REASONS: Final = ("dead", "lost", "damaged", "not measured")
+STRUCTURE_COLUMNS: Final = frozenset(
+    {"code", "unit", "block", "row", "col", "subsample", "round", "treatment", "missing_reason", "note"}
+)
+
+
+# Scalars are strict (a quoted "5" is not a number); lists are accepted for tuples.
+Int = StrictInt
+Str = StrictStr
+Bool = StrictBool
+Num = StrictFloat | StrictInt
+
+
+class _Frozen(BaseModel):
+    model_config = ConfigDict(frozen=True, extra="forbid")
+
+
+def _label(text: str) -> str:
+    if not text.strip():
+        raise ValueError("must not be empty")
+    if text != text.strip():
+        raise ValueError(f"must not start or end with a space, got {text!r}")
+    return text
+
+
+class Study(_Frozen):
+    id: Str
+    title: Str
+    seed: Int | None = None
+    blind: Bool = False
+
+    @field_validator("id")
+    @classmethod
+    def _id(cls, v: str) -> str:
+        if not re.fullmatch(r"[A-Z0-9]{2,8}", v):
+            raise ValueError(f"must be 2 to 8 of A-Z and 0-9 (upper case, no spaces or hyphens), got {v!r}")
+        return v
+
+    @field_validator("title")
+    @classmethod
+    def _title(cls, v: str) -> str:
+        return _label(v)
+
+    @field_validator("seed")
+    @classmethod
+    def _seed(cls, v: int | None) -> int | None:
+        if v is not None and not 0 <= v < 2**64:
+            raise ValueError(f"must be a whole number from 0 to 2^64-1, got {v}")
+        return v
+
+
+class Factor(_Frozen):
+    name: Str
+    levels: tuple[Str, ...]
+    whole_plot: Bool = False
+
+    @field_validator("name")
+    @classmethod
+    def _name(cls, v: str) -> str:
+        return _label(v)
+
+    @field_validator("levels")
+    @classmethod
+    def _levels(cls, v: tuple[str, ...]) -> tuple[str, ...]:
+        if len(v) < 2:
+            raise ValueError(f"a factor needs at least 2 levels, got {len(v)}")
+        for level in v:
+            _label(level)
+            if "/" in level:
+                raise ValueError(f"levels must not contain '/', which joins levels in treatment labels, got {level!r}")
+        _no_duplicates(v)
+        return v
+
+
+class Design(_Frozen):
+    type: Literal["crd", "rcbd", "latin-square", "split-plot"]
+    replicates: Int | dict[Str, Int] | None = None
+    blocks: Int | None = None
+    subsamples: Int = 1
+    unit_name: Str = "unit"
+    subsample_name: Str = "subsample"
+    treatments: tuple[Str, ...] | None = None
+
+    @field_validator("replicates", mode="before")
+    @classmethod
+    def _replicates_shape(cls, v: Any) -> Any:
+        table = isinstance(v, dict) and all(isinstance(k, str) and type(n) is int for k, n in v.items())
+        if v is None or type(v) is int or table:
+            return v
+        raise ValueError(
+            f"must be a whole number, or a table of treatment = whole number, got {_show(v)}"
+        )
+
+    @field_validator("subsamples")
+    @classmethod
+    def _subsamples(cls, v: int) -> int:
+        if not 1 <= v <= 999:
+            raise ValueError(f"must be a whole number from 1 to 999 (1 = no subsampling), got {v}")
+        return v
+
+    @field_validator("unit_name", "subsample_name")
+    @classmethod
+    def _names(cls, v: str) -> str:
+        return _label(v)
+
+    @field_validator("treatments")
+    @classmethod
+    def _treatments(cls, v: tuple[str, ...] | None) -> tuple[str, ...] | None:
+        if v is None:
+            return v
+        if len(v) < 2:
+            raise ValueError(f"a comparison needs at least 2 treatments, got {len(v)}")
+        for t in v:
+            _label(t)
+        _no_duplicates(v)
+        return v
+
+
+class Grid(_Frozen):
+    rows: Int
+    cols: Int
+    walk: Literal["serpentine", "rows"] = "serpentine"
+
+    @field_validator("rows", "cols")
+    @classmethod
+    def _size(cls, v: int) -> int:
+        if not 1 <= v <= 1000:
+            raise ValueError(f"must be a whole number from 1 to 1000, got {v}")
+        return v
+
+
+class Response(_Frozen):
+    name: Str
+    kind: Literal["number", "integer", "category", "text", "date"]
+    unit: Str | None = None
+    min: Num | None = None
+    max: Num | None = None
+    decimals: Int | None = None
+    levels: tuple[Str, ...] | None = None
+    required: Bool = True
+
+    @field_validator("name")
+    @classmethod
+    def _name(cls, v: str) -> str:
+        _label(v)
+        if v.lower() in STRUCTURE_COLUMNS:
+            raise ValueError(f"{v!r} is a column the sheets use already; choose another name")
+        return v
+
+    @field_validator("decimals")
+    @classmethod
+    def _decimals(cls, v: int | None) -> int | None:
+        if v is not None and not 0 <= v <= 10:
+            raise ValueError(f"must be a whole number from 0 to 10, got {v}")
+        return v
+
+    @field_validator("levels")
+    @classmethod
+    def _levels(cls, v: tuple[str, ...] | None) -> tuple[str, ...] | None:
+        if v is None:
+            return v
+        if len(v) < 2:
+            raise ValueError(f"a category needs at least 2 levels, got {len(v)}")
+        for level in v:
+            _label(level)
+        _no_duplicates(v)
+        return v
+
+    @property
+    def header(self) -> str:
+        """The column header on sheets: the name, with the unit in brackets when it has one."""
+        return f"{self.name} ({self.unit})" if self.unit else self.name
+
+
+class Collection(_Frozen):
+    rounds: tuple[Str, ...] = ("1",)
+    order: Literal["walk", "random"] = "walk"
+    missing_reasons: tuple[Str, ...] = DEFAULT_MISSING_REASONS
+
+    @field_validator("rounds", "missing_reasons")
+    @classmethod
+    def _names(cls, v: tuple[str, ...]) -> tuple[str, ...]:
+        if not v:
+            raise ValueError("must list at least one name")
+        for name in v:
+            _label(name)
+        _no_duplicates(v)
+        return v
+
+
+class Spec(_Frozen):
+    study: Study
+    design: Design
+    factor: tuple[Factor, ...] = ()
+    layout: Grid | None = None
+    response: tuple[Response, ...] = Field(min_length=1)
+    collection: Collection = Collection()
+
+    @property
+    def treatments(self) -> tuple[str, ...]:
+        """Treatment labels in spec order; factorial labels join levels with '/'."""
+        return tuple(label for label, _ in self.treatment_levels())
+
+    def treatment_levels(self) -> list[tuple[str, dict[str, str]]]:
+        """(label, factor → level) for every treatment, in spec order."""
+        if self.design.treatments is not None:
+            return [(t, {"treatment": t}) for t in self.design.treatments]
+        combos: list[dict[str, str]] = [{}]
+        for f in self.factor:
+            combos = [{**c, f.name: level} for c in combos for level in f.levels]
+        return [("/".join(c.values()), c) for c in combos]
+
+
+def _show(value: Any) -> str:
+    return repr(value) if isinstance(value, str) else json.dumps(value, default=str)
+
+
+def _no_duplicates(values: tuple[str, ...]) -> None:
+    seen: set[str] = set()
+    for v in values:
+        if v in seen:
+            raise ValueError(f"{v!r} is listed twice; every name must be different")
+        seen.add(v)
+
+
+def parse_spec(data: dict[str, Any], file: str = "spec") -> Spec:
+    """A validated Spec from parsed TOML/JSON data; SpecError lists every problem."""
+    try:
+        spec = Spec.model_validate(data)
+    except ValidationError as exc:
+        raise SpecError(problems_from_validation(exc, file, Spec)) from None
+    problems = [Problem(file, where, msg) for where, msg in design_rules(spec)]
+    if problems:
+        raise SpecError(problems)
+    return spec
+
+
+def loads_spec(text: str, file: str = "spec.toml") -> Spec:
+    """A validated Spec from TOML text, or JSON text when file ends in .json."""
+    if file.lower().endswith(".json"):
+        try:
+            data = json.loads(text)
+        except json.JSONDecodeError as exc:
+            raise SpecError([Problem(file, f"line {exc.lineno}, column {exc.colno}", f"not valid JSON: {exc.msg}")]) from None
+        if not isinstance(data, dict):
+            raise SpecError([Problem(file, "", "must hold one JSON object with the keys study, design, response")])
+    else:
+        try:
+            data = tomllib.loads(text)
+        except tomllib.TOMLDecodeError as exc:
+            raise SpecError([toml_problem(exc, file)]) from None
+    return parse_spec(data, file)
+
+
+def load_spec(path: str | Path) -> Spec:
+    """Read and validate a spec file (TOML, or JSON by its .json ending)."""
+    p = Path(path)
+    try:
+        raw = p.read_bytes()
+    except FileNotFoundError:
+        raise SpecError([Problem(str(p), "", "no such file")]) from None
+    except OSError as exc:
+        raise SpecError([Problem(str(p), "", f"cannot be read: {exc.strerror}")]) from None
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise SpecError([Problem(str(p), f"byte {exc.start}", "is not UTF-8 text; save the spec as UTF-8")]) from None
+    return loads_spec(text, str(p))

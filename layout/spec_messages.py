@@ -28,6 +28,9 @@ _KIND: dict[str, str] = {
 }
 
 
+_UNION_TAG = re.compile(r"(int|str|float|bool|none|dict|list|tuple|literal|(function|constrained|lax|strict)-[\w-]+)(\[.*\])?")
+
+
 def key_path(loc: tuple[Any, ...]) -> str:
     """A pydantic location as the user sees it: ``factor[2].levels`` (positions from 1)."""
     out = ""
@@ -82,14 +85,18 @@ def _inner_model(annotation: Any) -> Any:
 
 def _strip_union_tags(loc: tuple[Any, ...]) -> tuple[Any, ...]:
     # pydantic names the union member tried ("int", "dict[str,int]") inside a location.
-    return tuple(p for p in loc if not (isinstance(p, str) and re.fullmatch(r"[a-z]+(\[.*\])?|function-.*", p)))
+    return tuple(p for p in loc if not (isinstance(p, str) and _UNION_TAG.fullmatch(p)))
 
 
-def _one(err: dict[str, Any], file: str, model: type[BaseModel]) -> Problem:
+def _one(err: dict[str, Any], file: str, model: type[BaseModel]) -> Problem | None:
     loc = _strip_union_tags(tuple(err["loc"]))
     where = key_path(loc)
     kind = err["type"]
     value = err.get("input")
+    if kind == "too_short" and loc == ("response",) and value:
+        return None  # pydantic counts only the valid items; the bad ones are reported already
+    if kind in ("missing", "too_short") and loc == ("response",):
+        return Problem(file, where, "at least one [[response]] is needed: what will be measured")
     if kind == "missing":
         return Problem(file, where, "is required")
     if kind == "extra_forbidden":
@@ -103,8 +110,6 @@ def _one(err: dict[str, Any], file: str, model: type[BaseModel]) -> Problem:
         return Problem(file, where, f"must be one of {', '.join(allowed)}, got {show(value)}{hint}")
     if kind in ("tuple_type", "list_type") and isinstance(value, dict) and len(loc) == 1:
         return Problem(file, where, f"must be a list of tables: write [[{loc[0]}]] (double brackets) for each one")
-    if kind == "too_short" and loc == ("response",):
-        return Problem(file, where, "at least one [[response]] is needed: what will be measured")
     if kind == "value_error":
         return Problem(file, where, str(err["msg"]).removeprefix("Value error, "))
     if kind in _KIND:
@@ -118,7 +123,7 @@ def problems_from_validation(exc: ValidationError, file: str, model: type[BaseMo
     out: list[Problem] = []
     for err in exc.errors():
         problem = _one(err, file, model)
-        if problem.where not in seen:  # a union reports each member it tried; keep the first
+        if problem is not None and problem.where not in seen:  # a union reports each member it tried; keep the first
             seen.add(problem.where)
             out.append(problem)
     return out

@@ -48,7 +48,9 @@ def print_plan_summary(plan: Plan, path: Path | None) -> None:
     d = spec.design
     blocks = f", {d.blocks} blocks" if d.blocks else ""
     out.print(f"design      {d.type}{blocks}, {len(spec.treatments)} treatments")
-    out.print(f"units       {len(plan.units)} {d.unit_name}s × {d.subsamples} {d.subsample_name}s = {len(plan.slots)} slots")
+    out.print(
+        f"units       {len(plan.units)} {d.unit_name}s × {d.subsamples} {d.subsample_name}s = {len(plan.slots)} slots"
+    )
     out.print(f"rounds      {', '.join(r.name for r in plan.rounds)} (order: {spec.collection.order})")
     out.print(f"seed        {plan.seed}")
     out.print(f"fingerprint {plan.fingerprint}")
@@ -96,14 +98,24 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"layout {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
 
-    demo = sub.add_parser("demo", help="run the built-in invented example end to end", epilog=_EPILOG_DEMO,
-                          formatter_class=argparse.RawDescriptionHelpFormatter)
-    demo.add_argument("folder", nargs="?", default="layout-demo", metavar="DIR", help="where to write (default: ./layout-demo)")
+    demo = sub.add_parser(
+        "demo",
+        help="run the built-in invented example end to end",
+        epilog=_EPILOG_DEMO,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    demo.add_argument(
+        "folder", nargs="?", default="layout-demo", metavar="DIR", help="where to write (default: ./layout-demo)"
+    )
     demo.add_argument("--force", action="store_true", help="replace files a previous demo wrote")
     demo.set_defaults(run=_demo)
 
-    plan = sub.add_parser("plan", help="randomize a design spec into plan.json", epilog=_EPILOG_PLAN,
-                          formatter_class=argparse.RawDescriptionHelpFormatter)
+    plan = sub.add_parser(
+        "plan",
+        help="randomize a design spec into plan.json",
+        epilog=_EPILOG_PLAN,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
     plan.add_argument("spec", metavar="SPEC", help="the design spec (.toml, or .json with the same keys)")
     plan.add_argument("-o", "--output", default="plan.json", help="the plan file to write (default: plan.json)")
     plan.add_argument("--seed", type=_seed, help="the seed; overrides the spec's")

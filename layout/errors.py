@@ -48,7 +48,9 @@ class OutputExists(LayoutError, FileExistsError):
 
     def __init__(self, path: str) -> None:
         self.path = path
-        super().__init__(f"{path}: already exists; nothing was written. Use --force to replace it, or choose another output")
+        super().__init__(
+            f"{path}: already exists; nothing was written. Use --force to replace it, or choose another output"
+        )
 
 
 class UsageError(LayoutError, ValueError):

@@ -147,7 +147,9 @@ def make_plan(spec: Spec, seed: int | None = None) -> Plan:
     for serial, p in enumerate(placements, start=1):
         seen[p.treatment] = seen.get(p.treatment, 0) + 1
         code = unit_code(study, serial, width)
-        units.append(Unit(code, serial, p.treatment, p.levels, p.block, seen[p.treatment], p.row, p.col, p.whole_plot, serial))
+        units.append(
+            Unit(code, serial, p.treatment, p.levels, p.block, seen[p.treatment], p.row, p.col, p.whole_plot, serial)
+        )
         slots += [Slot(slot_code(study, serial, width, s, subsamples), code, s) for s in range(1, subsamples + 1)]
     rounds = []
     for name in spec.collection.rounds:
@@ -182,7 +184,9 @@ def parse_plan(text: str, file: str = "plan.json") -> Plan:
     except (KeyError, TypeError, ValueError, ValidationError) as exc:
         raise PlanError(f"{file}: not a complete layout plan ({type(exc).__name__}: {exc})") from None
     if plan.rng.get("version") != ALGORITHM["version"] or plan.rng.get("name") != ALGORITHM["name"]:
-        raise PlanError(f"{file}: made with random stream {plan.rng.get('name')!r} version {plan.rng.get('version')!r}, which this version of layout does not know")
+        raise PlanError(
+            f"{file}: made with random stream {plan.rng.get('name')!r} version {plan.rng.get('version')!r}, which this version of layout does not know"
+        )
     return plan
 
 

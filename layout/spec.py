@@ -13,7 +13,17 @@ import tomllib
 from pathlib import Path
 from typing import Any, Final, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, StrictBool, StrictFloat, StrictInt, StrictStr, ValidationError, field_validator
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    StrictBool,
+    StrictFloat,
+    StrictInt,
+    StrictStr,
+    ValidationError,
+    field_validator,
+)
 
 from layout.errors import Problem, SpecError
 from layout.spec_messages import problems_from_validation, toml_problem
@@ -110,9 +120,7 @@ class Design(_Frozen):
         table = isinstance(v, dict) and all(isinstance(k, str) and type(n) is int for k, n in v.items())
         if v is None or type(v) is int or table:
             return v
-        raise ValueError(
-            f"must be a whole number, or a table of treatment = whole number, got {_show(v)}"
-        )
+        raise ValueError(f"must be a whole number, or a table of treatment = whole number, got {_show(v)}")
 
     @field_validator("subsamples")
     @classmethod
@@ -264,7 +272,9 @@ def loads_spec(text: str, file: str = "spec.toml") -> Spec:
         try:
             data = json.loads(text)
         except json.JSONDecodeError as exc:
-            raise SpecError([Problem(file, f"line {exc.lineno}, column {exc.colno}", f"not valid JSON: {exc.msg}")]) from None
+            raise SpecError(
+                [Problem(file, f"line {exc.lineno}, column {exc.colno}", f"not valid JSON: {exc.msg}")]
+            ) from None
         if not isinstance(data, dict):
             raise SpecError([Problem(file, "", "must hold one JSON object with the keys study, design, response")])
     else:

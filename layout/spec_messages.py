@@ -28,7 +28,9 @@ _KIND: dict[str, str] = {
 }
 
 
-_UNION_TAG = re.compile(r"(int|str|float|bool|none|dict|list|tuple|literal|(function|constrained|lax|strict)-[\w-]+)(\[.*\])?")
+_UNION_TAG = re.compile(
+    r"(int|str|float|bool|none|dict|list|tuple|literal|(function|constrained|lax|strict)-[\w-]+)(\[.*\])?"
+)
 
 
 def key_path(loc: tuple[Any, ...]) -> str:

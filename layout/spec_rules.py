@@ -62,21 +62,30 @@ def _design(spec: Spec) -> Rule:
     if d.type == "crd":
         yield from _crd(spec)
         if d.blocks is not None:
-            yield "design.blocks", "a crd has no blocks; use type = \"rcbd\" for a blocked design, or leave blocks out"
+            yield "design.blocks", 'a crd has no blocks; use type = "rcbd" for a blocked design, or leave blocks out'
     elif d.type in ("rcbd", "split-plot"):
         if d.blocks is None:
             yield "design.blocks", f"is required for {d.type}: a whole number of at least 2"
         elif d.blocks < 2:
             yield "design.blocks", f"must be an integer of at least 2 for {d.type}, got {d.blocks}"
         if d.replicates is not None:
-            yield "design.replicates", f"{d.type} has one unit of each treatment per block; leave replicates out and set blocks"
+            yield (
+                "design.replicates",
+                f"{d.type} has one unit of each treatment per block; leave replicates out and set blocks",
+            )
     elif d.type == "latin-square":
         if d.replicates is not None:
-            yield "design.replicates", "a latin square has each treatment once in every row and column; leave replicates out"
+            yield (
+                "design.replicates",
+                "a latin square has each treatment once in every row and column; leave replicates out",
+            )
         if d.blocks is not None:
             yield "design.blocks", "a latin square has rows and columns instead of blocks; leave blocks out"
         if not 3 <= t <= 26:
-            yield "design", f"a latin square needs 3 to 26 treatments (with 2 there is no error to test against), got {t}"
+            yield (
+                "design",
+                f"a latin square needs 3 to 26 treatments (with 2 there is no error to test against), got {t}",
+            )
     if d.type == "split-plot":
         yield from _split_plot(spec)
 
@@ -87,7 +96,10 @@ def _crd(spec: Spec) -> Rule:
         yield "design.replicates", "is required for crd: units per treatment, a whole number of at least 2"
     elif isinstance(reps, int):
         if reps < 2:
-            yield "design.replicates", f"must be a whole number of at least 2 (experimental error needs replication), got {reps}"
+            yield (
+                "design.replicates",
+                f"must be a whole number of at least 2 (experimental error needs replication), got {reps}",
+            )
     else:
         treatments = list(spec.treatments)
         for name, n in reps.items():
@@ -143,14 +155,23 @@ def _size(spec: Spec) -> Rule:
     if n > MAX_UNITS:
         yield "design", f"makes {n} units; at most {MAX_UNITS} are supported"
     elif n * spec.design.subsamples > MAX_SLOTS:
-        yield "design.subsamples", f"makes {n * spec.design.subsamples} subsample slots; at most {MAX_SLOTS} are supported"
+        yield (
+            "design.subsamples",
+            f"makes {n * spec.design.subsamples} subsample slots; at most {MAX_SLOTS} are supported",
+        )
     grid = spec.layout
     if grid is None:
         return
     if spec.design.type == "latin-square" and (grid.rows, grid.cols) != (t, t):
-        yield "layout", f"a latin square of {t} treatments is a {t} × {t} grid, got rows = {grid.rows}, cols = {grid.cols}"
+        yield (
+            "layout",
+            f"a latin square of {t} treatments is a {t} × {t} grid, got rows = {grid.rows}, cols = {grid.cols}",
+        )
     elif grid.rows * grid.cols < n:
-        yield "layout", (
-            f"a {grid.rows} × {grid.cols} grid holds {grid.rows * grid.cols} units, the design has {n}; "
-            f"make rows × cols at least {n}"
+        yield (
+            "layout",
+            (
+                f"a {grid.rows} × {grid.cols} grid holds {grid.rows * grid.cols} units, the design has {n}; "
+                f"make rows × cols at least {n}"
+            ),
         )

@@ -34,7 +34,9 @@ class TestHelp:
 
 class TestPlanCommand:
     @pytest.mark.parametrize("path", INVALID, ids=lambda p: p.name)
-    def test_bad_spec_exits_2_with_its_messages(self, path: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    def test_bad_spec_exits_2_with_its_messages(
+        self, path: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+    ) -> None:
         """Every invalid spec exits 2 and prints exactly its messages, no traceback, no plan."""
         expected = (path.parent / f"{path.name}.expected").read_text(encoding="utf-8").strip().splitlines()
         code = main(["plan", str(path), "-o", str(tmp_path / "plan.json")])

@@ -55,7 +55,7 @@ class TestRcbd:
     @pytest.mark.parametrize("seed", SEEDS)
     def test_each_treatment_once_per_block(self, seed: int) -> None:
         """Every block holds every treatment exactly once."""
-        plan = make_plan(spec_from(f'type = "rcbd"\nblocks = 5\n', extra=FACTORS_2x2), seed)
+        plan = make_plan(spec_from('type = "rcbd"\nblocks = 5\n', extra=FACTORS_2x2), seed)
         by_block = defaultdict(list)
         for u in plan.units:
             by_block[u.block].append(u.treatment)
@@ -65,8 +65,13 @@ class TestRcbd:
     @pytest.mark.parametrize("seed", SEEDS[:10])
     def test_blocks_are_contiguous_bands_in_walk_order(self, seed: int) -> None:
         """On a grid, each block fills one unbroken stretch of the walk."""
-        plan = make_plan(spec_from('type = "rcbd"\nblocks = 3\ntreatments = ["a", "b", "c", "d", "e"]',
-                                   extra="[layout]\nrows = 3\ncols = 5\nwalk = \"serpentine\""), seed)
+        plan = make_plan(
+            spec_from(
+                'type = "rcbd"\nblocks = 3\ntreatments = ["a", "b", "c", "d", "e"]',
+                extra='[layout]\nrows = 3\ncols = 5\nwalk = "serpentine"',
+            ),
+            seed,
+        )
         blocks = [u.block for u in sorted(plan.units, key=lambda u: u.walk)]
         assert blocks == sorted(blocks)
         assert [(u.row, u.col) for u in plan.units] == walk_cells(3, 5, "serpentine")
@@ -115,7 +120,12 @@ class TestSplitPlot:
         for units in plots.values():
             assert len({u.levels["till"] for u in units}) == 1
             assert len({u.block for u in units}) == 1
-            assert sorted((u.levels["cv"], u.levels["n"]) for u in units) == [("A", "hi"), ("A", "lo"), ("B", "hi"), ("B", "lo")]
+            assert sorted((u.levels["cv"], u.levels["n"]) for u in units) == [
+                ("A", "hi"),
+                ("A", "lo"),
+                ("B", "hi"),
+                ("B", "lo"),
+            ]
         for block in range(1, 5):
             levels = [units[0].levels["till"] for units in plots.values() if units[0].block == block]
             assert sorted(levels) == ["disc", "none", "plough"]
@@ -131,8 +141,12 @@ class TestSplitPlot:
 class TestSerialsRevealNothing:
     def test_serials_follow_walk(self) -> None:
         """Serial numbers are the walk order, not grouped by treatment."""
-        plan = make_plan(spec_from('type = "crd"\nreplicates = 5\ntreatments = ["a", "b", "c", "d"]',
-                                   extra="[layout]\nrows = 4\ncols = 5"), 4817)
+        plan = make_plan(
+            spec_from(
+                'type = "crd"\nreplicates = 5\ntreatments = ["a", "b", "c", "d"]', extra="[layout]\nrows = 4\ncols = 5"
+            ),
+            4817,
+        )
         assert [u.serial for u in plan.units] == [u.walk for u in plan.units] == list(range(1, 21))
         first_five = [u.treatment for u in plan.units[:5]]
         assert len(set(first_five)) > 1
@@ -141,8 +155,10 @@ class TestSerialsRevealNothing:
 class TestCollectionOrder:
     def test_random_order_per_round_within_blocks(self) -> None:
         """With order = random each round gets its own order, and blocks stay together."""
-        spec = spec_from('type = "rcbd"\nblocks = 3\ntreatments = ["a", "b", "c", "d", "e", "f"]',
-                         extra='[collection]\nrounds = ["r1", "r2", "r3"]\norder = "random"')
+        spec = spec_from(
+            'type = "rcbd"\nblocks = 3\ntreatments = ["a", "b", "c", "d", "e", "f"]',
+            extra='[collection]\nrounds = ["r1", "r2", "r3"]\norder = "random"',
+        )
         plan = make_plan(spec, 11)
         orders = [r.order for r in plan.rounds]
         assert len(set(orders)) == 3
@@ -154,6 +170,10 @@ class TestCollectionOrder:
 
     def test_walk_order_is_serial_order(self) -> None:
         """With order = walk every round follows the walk."""
-        plan = make_plan(spec_from('type = "crd"\nreplicates = 2\ntreatments = ["a", "b"]',
-                                   extra='[collection]\nrounds = ["x", "y"]'), 2)
+        plan = make_plan(
+            spec_from(
+                'type = "crd"\nreplicates = 2\ntreatments = ["a", "b"]', extra='[collection]\nrounds = ["x", "y"]'
+            ),
+            2,
+        )
         assert all(r.order == tuple(u.code for u in plan.units) for r in plan.rounds)

@@ -5,6 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import pytest
+from pydantic import ValidationError
 
 from layout import SpecError, load_spec, loads_spec
 from layout.spec import DEFAULT_MISSING_REASONS
@@ -35,7 +36,7 @@ def test_valid_spec_loads(path: Path) -> None:
     """Every example spec loads into a frozen Spec."""
     spec = load_spec(path)
     assert spec.study.id
-    with pytest.raises(Exception):
+    with pytest.raises(ValidationError):
         spec.study.id = "CHANGED"  # type: ignore[misc]
 
 

@@ -94,7 +94,10 @@ def randomize(spec: Spec, stream: Stream) -> list[Placement]:
         return placements
     # Walk order fills the grid, so blocks take contiguous bands of the walk.
     cells = walk_cells(grid.rows, grid.cols, grid.walk)
-    return [Placement(p.treatment, p.levels, p.block, p.whole_plot, r, c) for p, (r, c) in zip(placements, cells)]
+    return [
+        Placement(p.treatment, p.levels, p.block, p.whole_plot, r, c)
+        for p, (r, c) in zip(placements, cells[: len(placements)], strict=True)
+    ]
 
 
 def collection_order(placements: list[Placement], stream: Stream) -> list[int]:

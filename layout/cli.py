@@ -13,8 +13,10 @@ from rich.table import Table
 
 from layout import __version__
 from layout.demo import run_demo
-from layout.errors import LayoutError
-from layout.plan import Plan, make_plan
+from layout.errors import LayoutError, UsageError
+from layout.outputs import PRODUCTS, SheetOptions, write_sheets
+from layout.outputs.labels import LabelGeometry, parse_pair
+from layout.plan import Plan, load_plan, make_plan
 from layout.spec import load_spec
 
 # Markup off: titles, labels and messages are the user's text and may hold brackets.
@@ -28,6 +30,15 @@ _EPILOG_PLAN = """example:
 Without a seed in the spec or on the command line, one is drawn from the
 operating system, printed and recorded in the plan. An existing plan is never
 replaced without --force: re-randomizing must be deliberate."""
+
+_EPILOG_SHEETS = """example:
+  layout sheets plan.json -o field --pdf
+  layout sheets plan.json --only labels --label-printer --label-size 50x25 --pdf
+  layout sheets plan.json --only labels --label-grid 2x7 --label-size 99x38 --label-margins 15x6 --label-gaps 2x0
+
+Makes entry.xlsx, sheets.html, labels.html, unit-labels.html, map.html (and map-key.html
+for a blind study) and key.csv from the plan alone. An existing file, such as a
+filled-in entry.xlsx, is never replaced without --force."""
 
 _EPILOG_DEMO = """example:
   layout demo              # into ./layout-demo
@@ -68,12 +79,64 @@ def _plan(args: argparse.Namespace) -> int:
     return 0
 
 
+def _label_geometry(args: argparse.Namespace) -> LabelGeometry:
+    base = LabelGeometry()
+    values = dict(base.__dict__)
+    if args.label_printer:
+        values["single"] = True
+        values["width"], values["height"] = 50.0, 25.0
+    if args.label_size:
+        values["width"], values["height"] = parse_pair(args.label_size, "--label-size")
+    if args.label_grid:
+        cols, rows = parse_pair(args.label_grid, "--label-grid")
+        if cols != int(cols) or rows != int(rows) or cols < 1 or rows < 1:
+            raise UsageError(
+                f"--label-grid: must be whole numbers of columns x rows such as 3x8, got {args.label_grid!r}"
+            )
+        values["cols"], values["rows"] = int(cols), int(rows)
+    if args.label_margins:
+        values["top"], values["left"] = parse_pair(args.label_margins, "--label-margins")
+    if args.label_gaps:
+        values["col_gap"], values["row_gap"] = parse_pair(args.label_gaps, "--label-gaps")
+    values["paper"] = args.paper
+    return LabelGeometry(**values)
+
+
+def _sheets(args: argparse.Namespace) -> int:
+    plan = load_plan(args.plan)
+    only = tuple(p.strip() for p in args.only.split(",") if p.strip()) if args.only else PRODUCTS
+    options = SheetOptions(
+        only=only,
+        pdf=args.pdf,
+        paper=args.paper,
+        labels=_label_geometry(args),
+        pdf_engine=args.pdf_engine,
+        force=args.force,
+        progress=True,
+    )
+    folder = Path(args.output) if args.output else Path(args.plan).parent
+    written = write_sheets(plan, folder, options)
+    out.print(
+        f"{plan.spec.study.id}: {len(plan.units)} {plan.spec.design.unit_name}s, {len(plan.slots)} slots, "
+        f"{len(plan.rounds)} round(s); plan {plan.fingerprint[:12]}"
+    )
+    for path in written:
+        out.print(f"  wrote {path}")
+    if plan.spec.study.blind and ("key" in only or "map" in only):
+        out.print(
+            "Blind study: key.csv and map-key.html show treatments; keep them away from collectors.", style="bold"
+        )
+    return 0
+
+
 def _demo(args: argparse.Namespace) -> int:
-    result = run_demo(args.folder, force=args.force)
+    result = run_demo(args.folder, force=args.force, progress=True)
     print_plan_summary(result.plan, None)
     out.print(f"\nThe demo wrote {len(result.written)} files into {result.folder}:")
     for path in result.written:
         out.print(f"  {path}")
+    if not result.pdf:
+        out.print("No PDF engine was found, so no PDFs were made: pip install 'layout[pdf]' or install Chromium.")
     return 0
 
 
@@ -121,6 +184,35 @@ def build_parser() -> argparse.ArgumentParser:
     plan.add_argument("--seed", type=_seed, help="the seed; overrides the spec's")
     plan.add_argument("--force", action="store_true", help="replace an existing plan (re-randomizes!)")
     plan.set_defaults(run=_plan)
+
+    sheets = sub.add_parser(
+        "sheets",
+        help="make the workbook, collection sheets, labels, map and key from a plan",
+        epilog=_EPILOG_SHEETS,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    sheets.add_argument("plan", metavar="PLAN", help="plan.json made by 'layout plan'")
+    sheets.add_argument("-o", "--output", metavar="DIR", help="folder to write into (default: the plan's folder)")
+    sheets.add_argument("--only", metavar="LIST", help=f"comma-separated subset of {','.join(PRODUCTS)}")
+    sheets.add_argument("--pdf", action="store_true", help="also write PDFs of the sheets and labels")
+    sheets.add_argument(
+        "--pdf-engine",
+        default="auto",
+        metavar="ENGINE",
+        help="auto (a Chromium browser if found, else WeasyPrint), weasyprint, chromium, or a browser's path",
+    )
+    sheets.add_argument("--paper", choices=("a4", "letter"), default="a4", help="paper size (default: a4)")
+    sheets.add_argument("--label-grid", metavar="COLSxROWS", help="labels across x down on a sheet (default: 3x8)")
+    sheets.add_argument(
+        "--label-size", metavar="WxH", help="label width x height in mm (default: 64x34; 50x25 with --label-printer)"
+    )
+    sheets.add_argument("--label-margins", metavar="TOPxLEFT", help="sheet margins in mm (default: 12.5x7)")
+    sheets.add_argument("--label-gaps", metavar="COLxROW", help="gaps between labels in mm (default: 2x0)")
+    sheets.add_argument("--label-printer", action="store_true", help="one label per page, for label printers")
+    sheets.add_argument(
+        "--force", action="store_true", help="replace existing files (a filled-in workbook would be lost!)"
+    )
+    sheets.set_defaults(run=_sheets)
     return parser
 
 

@@ -6,7 +6,10 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Final
 
+from layout.errors import UsageError
 from layout.files import write_new
+from layout.outputs import SheetOptions, write_sheets
+from layout.outputs.pdf import choose_engine
 from layout.plan import Plan, make_plan
 from layout.spec import loads_spec
 
@@ -66,13 +69,22 @@ class DemoResult:
     folder: Path
     plan: Plan
     written: list[Path] = field(default_factory=list)
+    pdf: bool = False
 
 
-def run_demo(folder: str | Path, force: bool = False) -> DemoResult:
+def run_demo(folder: str | Path, force: bool = False, progress: bool = False) -> DemoResult:
     """Write the demo spec and every output the tool makes from it into folder."""
     out = Path(folder)
     spec_path = write_new(out / "spec.toml", DEMO_SPEC, force=force)
     plan = make_plan(loads_spec(DEMO_SPEC, str(spec_path)))
     result = DemoResult(out, plan, [spec_path])
     result.written.append(plan.save(out / "plan.json", force=force))
+    try:
+        choose_engine("auto")
+        pdf = True
+    except UsageError:
+        pdf = False  # no PDF engine on this machine: the HTML pages print from any browser
+    options = SheetOptions(pdf=pdf, force=force, progress=progress)
+    result.written += write_sheets(plan, out, options)
+    result.pdf = pdf
     return result

@@ -1,0 +1,224 @@
+"""The printable pages: collection sheets, labels and the map, rendered from templates.
+
+The data each page needs is prepared here; the templates only loop and format.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from functools import cache
+from importlib import resources
+from typing import Any, Final
+
+from jinja2 import Environment, FileSystemLoader, select_autoescape
+from markupsafe import Markup
+
+from layout import __version__
+from layout.outputs.entry_table import EntryRow, allowed_text, entry_rows
+from layout.outputs.labels import PAD_MM, LabelGeometry
+from layout.outputs.qr import qr_svg
+from layout.plan import Plan, Unit
+
+BLOCK_COLOURS: Final = ("#d8eedf", "#fbe4c0", "#d6e3f5", "#f5d7e1", "#e4ddf3", "#f0edc4", "#d2ecec", "#ecdcd0")
+TREATMENT_COLOURS: Final = (
+    "#1b7f5a",
+    "#c2571a",
+    "#3559a8",
+    "#a02c5f",
+    "#6b4aa8",
+    "#8a7a12",
+    "#1d8a8a",
+    "#7a4a2a",
+    "#4f6b1f",
+    "#b03a2e",
+    "#2c6e91",
+    "#875b9e",
+)
+_SHEET_ROWS: Final = {
+    ("a4", "portrait"): 24,
+    ("a4", "landscape"): 15,
+    ("letter", "portrait"): 22,
+    ("letter", "landscape"): 16,
+}
+
+Tick = Callable[[], None]
+
+
+@cache
+def _env() -> Environment:
+    folder = str(resources.files("layout.templates"))
+    return Environment(
+        loader=FileSystemLoader(folder),
+        autoescape=select_autoescape(["html"]),
+        trim_blocks=True,
+        lstrip_blocks=True,
+        keep_trailing_newline=True,
+    )
+
+
+def _css(name: str) -> Markup:
+    return Markup(resources.files("layout.templates").joinpath(name).read_text(encoding="utf-8"))
+
+
+def _common(plan: Plan) -> dict[str, Any]:
+    s = plan.spec
+    return {
+        "study": s.study,
+        "design": s.design,
+        "fingerprint": plan.fingerprint,
+        "short_fp": plan.fingerprint[:12],
+        "version": __version__,
+        "css": _css("print.css"),
+    }
+
+
+def position_text(u: Unit) -> str:
+    """Where a unit is, in words short enough for a label."""
+    parts = []
+    if u.block is not None:
+        parts.append(f"block {u.block}")
+    if u.row is not None:
+        parts.append(f"row {u.row} col {u.col}")
+    return ", ".join(parts)
+
+
+@dataclass
+class SheetPage:
+    """One printed collection sheet."""
+
+    round: str
+    block: int | None
+    rows: list[EntryRow] = field(default_factory=list)
+    number: int = 0
+
+
+def sheet_pages(plan: Plan, paper: str) -> tuple[list[SheetPage], str]:
+    """Rows cut into pages by round and block, and the orientation that fits the responses."""
+    orientation = "portrait" if len(plan.spec.response) <= 3 else "landscape"
+    per_page = _SHEET_ROWS[(paper, orientation)]
+    pages: list[SheetPage] = []
+    for row in entry_rows(plan):
+        last = pages[-1] if pages else None
+        if last is None or (last.round, last.block) != (row.round, row.unit.block) or len(last.rows) >= per_page:
+            pages.append(SheetPage(row.round, row.unit.block))
+        pages[-1].rows.append(row)
+    for i, page in enumerate(pages, start=1):
+        page.number = i
+    return pages, orientation
+
+
+def render_sheets(plan: Plan, paper: str = "a4") -> str:
+    """sheets.html: collection sheets by round and block, in collection order."""
+    pages, orientation = sheet_pages(plan, paper)
+    responses = [{"header": r.header, "name": r.name, "allowed": allowed_text(r)} for r in plan.spec.response]
+    return (
+        _env()
+        .get_template("sheets.html")
+        .render(
+            **_common(plan),
+            pages=pages,
+            total=len(pages),
+            responses=responses,
+            paper=paper,
+            orientation=orientation,
+            reasons=plan.spec.collection.missing_reasons,
+            show_treatment=not plan.spec.study.blind,
+            position=position_text,
+        )
+    )
+
+
+def _label_pages(items: list[dict[str, Any]], geometry: LabelGeometry) -> list[list[dict[str, Any]]]:
+    per = geometry.per_page
+    pages = [items[i : i + per] for i in range(0, len(items), per)]
+    for page in pages:
+        for i, item in enumerate(page):
+            item["x"], item["y"] = geometry.position(i)
+    return pages
+
+
+def render_labels(plan: Plan, geometry: LabelGeometry, units: bool = False, tick: Tick | None = None) -> str:
+    """labels.html (one per slot) or unit-labels.html (one per unit)."""
+    d = plan.spec.design
+    blind = plan.spec.study.blind
+    items: list[dict[str, Any]] = []
+    if units:
+        for u in plan.units:
+            lines = [f"{d.unit_name} {u.serial}", position_text(u)] + ([] if blind else [u.treatment])
+            items.append(
+                {"code": u.code, "qr": Markup(qr_svg(u.code, geometry.qr_size)), "lines": [x for x in lines if x]}
+            )
+            if tick:
+                tick()
+    else:
+        for s in plan.slots:
+            u = plan.unit_by_code[s.unit]
+            lines = [f"{d.subsample_name} {s.subsample} of {d.subsamples}", f"{d.unit_name} {u.code}", position_text(u)]
+            lines += [] if blind else [u.treatment]
+            items.append(
+                {"code": s.code, "qr": Markup(qr_svg(s.code, geometry.qr_size)), "lines": [x for x in lines if x]}
+            )
+            if tick:
+                tick()
+    page_w, page_h = geometry.page_size
+    text_w = geometry.width - geometry.qr_size - 3 * PAD_MM
+    font = round(min(3.4, geometry.height * 0.115, text_w / 7.5), 2)
+    return (
+        _env()
+        .get_template("labels.html")
+        .render(
+            **_common(plan),
+            pages=_label_pages(items, geometry),
+            g=geometry,
+            page_w=page_w,
+            page_h=page_h,
+            pad=PAD_MM,
+            text_w=text_w,
+            font=font,
+            kind="unit" if units else "slot",
+        )
+    )
+
+
+def _map_grid(plan: Plan) -> tuple[list[list[Unit | None]], bool]:
+    """Rows of cells (None for an empty cell), and whether they are a real grid."""
+    grid = plan.spec.layout
+    if any(u.row is not None for u in plan.units):
+        rows = max(u.row or 0 for u in plan.units) if grid is None else grid.rows
+        cols = max(u.col or 0 for u in plan.units) if grid is None else grid.cols
+        cells: list[list[Unit | None]] = [[None] * cols for _ in range(rows)]
+        for u in plan.units:
+            cells[(u.row or 1) - 1][(u.col or 1) - 1] = u
+        return cells, True
+    width = max(len(plan.spec.treatments), 5)
+    if width > 10:
+        width = 10
+    units: list[Unit | None] = list(plan.units)
+    return [units[i : i + width] for i in range(0, len(units), width)], False
+
+
+def render_map(plan: Plan, show_treatments: bool) -> str:
+    """map.html: the grid coloured by block, codes in cells; treatments only when asked."""
+    cells, is_grid = _map_grid(plan)
+    treatments = list(plan.spec.treatments)
+    colour = {t: TREATMENT_COLOURS[i % len(TREATMENT_COLOURS)] for i, t in enumerate(treatments)}
+    blocks = sorted({u.block for u in plan.units if u.block is not None})
+    cols = max(len(r) for r in cells)
+    return (
+        _env()
+        .get_template("map.html")
+        .render(
+            **_common(plan),
+            cells=cells,
+            is_grid=is_grid,
+            show_treatments=show_treatments,
+            treatment_colour=colour,
+            treatments=treatments,
+            factor_names=" / ".join(f.name for f in plan.spec.factor),
+            blocks=blocks,
+            block_colour=lambda b: BLOCK_COLOURS[(b - 1) % len(BLOCK_COLOURS)] if b else "#f4f5f6",
+            orientation="landscape" if cols > 8 else "portrait",
+            walk=plan.spec.layout.walk if plan.spec.layout else None,
+        )
+    )

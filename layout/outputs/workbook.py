@@ -1,0 +1,214 @@
+"""entry.xlsx: the data-entry workbook, written in openpyxl's write-only mode.
+
+Structure columns are locked and shaded, input cells unlocked; every response column has
+a data validation with an input message. A very hidden sheet carries the plan's
+fingerprint and the slot list (never the treatment key when the study is blind), so a
+returned workbook can prove which plan it belongs to.
+"""
+
+from __future__ import annotations
+
+import io
+import zipfile
+from datetime import datetime
+from typing import Final
+
+from openpyxl import Workbook
+from openpyxl.cell import WriteOnlyCell
+from openpyxl.styles import Alignment, Font, PatternFill, Protection
+from openpyxl.utils import get_column_letter
+from openpyxl.worksheet.datavalidation import DataValidation
+from openpyxl.worksheet._write_only import WriteOnlyWorksheet
+
+from layout import __version__
+from layout.outputs.entry_table import TRAILING, allowed_text, entry_rows, headers, structure_columns, structure_values
+from layout.plan import Plan
+from layout.spec import Response
+
+HIDDEN_SHEET: Final = "layout_plan"
+ENTRY_FORMAT: Final = "layout-entry/1"
+_FIXED_TIME: Final = datetime(2000, 1, 1)  # fixed so the same plan gives the same bytes
+_SHADE: Final = PatternFill("solid", fgColor="E8ECEF")
+_BOLD: Final = Font(bold=True)
+_OPEN: Final = Protection(locked=False)
+
+
+def _cell(ws: WriteOnlyWorksheet, value: object, *, locked: bool = True, bold: bool = False) -> WriteOnlyCell:
+    c = WriteOnlyCell(ws, value=value)
+    if locked:
+        c.fill = _SHADE
+    else:
+        c.protection = _OPEN
+    if bold:
+        c.font = _BOLD
+    return c
+
+
+def _validation(r: Response, cells: str) -> DataValidation:
+    """Excel data validation for one response column."""
+    title = r.name[:32]
+    prompt = f"{r.header}: {allowed_text(r)}. Leave blank and pick a missing_reason if it could not be measured."[:255]
+    kw = dict(
+        allow_blank=True,
+        showInputMessage=True,
+        showErrorMessage=True,
+        promptTitle=title,
+        prompt=prompt,
+        errorTitle=title,
+        error=f"Allowed: {allowed_text(r)}"[:255],
+    )
+    if r.kind in ("number", "integer"):
+        kind = "whole" if r.kind == "integer" else "decimal"
+        lo, hi = r.min, r.max
+        if lo is not None and hi is not None:
+            dv = DataValidation(type=kind, operator="between", formula1=f"{lo:g}", formula2=f"{hi:g}", **kw)
+        elif lo is not None:
+            dv = DataValidation(type=kind, operator="greaterThanOrEqual", formula1=f"{lo:g}", **kw)
+        elif hi is not None:
+            dv = DataValidation(type=kind, operator="lessThanOrEqual", formula1=f"{hi:g}", **kw)
+        else:
+            dv = DataValidation(type=kind, operator="between", formula1="-1E+307", formula2="1E+307", **kw)
+    elif r.kind == "category":
+        dv = DataValidation(type="list", formula1=_list_formula(r.levels or ()), **kw)
+    elif r.kind == "date":
+        # 1 is 1900-01-01 in spreadsheet date serials: any real date passes.
+        dv = DataValidation(type="date", operator="greaterThanOrEqual", formula1="1", **kw)
+    else:
+        dv = DataValidation(type="textLength", operator="lessThanOrEqual", formula1="32767", **kw)
+    dv.add(cells)
+    return dv
+
+
+def _list_formula(items: tuple[str, ...]) -> str:
+    text = ",".join(items)
+    return f'"{text}"'
+
+
+def _entry_sheet(wb: Workbook, plan: Plan) -> None:
+    ws = wb.create_sheet("entry")
+    head = headers(plan)
+    rows = entry_rows(plan)
+    n_struct = len(structure_columns(plan))
+    last = len(rows) + 1
+    widths = [14, 12, 7, 6, 6, 10, 10] + ([16] if not plan.spec.study.blind else [])
+    widths += [max(12, len(r.header) + 3) for r in plan.spec.response] + [16, 30]
+    for i, w in enumerate(widths, start=1):
+        ws.column_dimensions[get_column_letter(i)].width = w
+    for j, r in enumerate(plan.spec.response):
+        col = get_column_letter(n_struct + j + 1)
+        ws.data_validations.append(_validation(r, f"{col}2:{col}{last}"))
+    reasons_col = get_column_letter(n_struct + len(plan.spec.response) + 1)
+    reasons = DataValidation(
+        type="list",
+        formula1=_list_formula(plan.spec.collection.missing_reasons),
+        allow_blank=True,
+        showInputMessage=True,
+        promptTitle="missing_reason",
+        prompt="Only when a value is blank: why it could not be measured.",
+    )
+    reasons.add(f"{reasons_col}2:{reasons_col}{last}")
+    ws.data_validations.append(reasons)
+    ws.freeze_panes = "B2"
+    ws.print_title_rows = "1:1"
+    ws.page_setup.orientation = "landscape"
+    ws.page_setup.fitToWidth = 1
+    ws.page_setup.fitToHeight = 0
+    ws.sheet_properties.pageSetUpPr.fitToPage = True
+    ws.protection.sheet = True  # no password: it guards against slips, not people
+    ws.protection.formatColumns = False
+    ws.protection.autoFilter = False
+    ws.append([_cell(ws, h, bold=True) for h in head])
+    inputs = len(plan.spec.response) + len(TRAILING)
+    for row in rows:
+        ws.append(
+            [_cell(ws, v) for v in structure_values(plan, row)] + [_cell(ws, None, locked=False) for _ in range(inputs)]
+        )
+
+
+def _units_sheet(wb: Workbook, plan: Plan) -> None:
+    ws = wb.create_sheet("units")
+    blind = plan.spec.study.blind
+    head = ["unit", "serial", "block", "row", "col", "whole_plot", "subsamples"] + ([] if blind else ["treatment"])
+    for i, w in enumerate([12, 8, 7, 6, 6, 11, 11, 16], start=1):
+        ws.column_dimensions[get_column_letter(i)].width = w
+    ws.freeze_panes = "A2"
+    ws.append([_cell(ws, h, bold=True) for h in head])
+    for u in plan.units:
+        values = [u.code, u.serial, u.block, u.row, u.col, u.whole_plot, plan.spec.design.subsamples]
+        ws.append(values + ([] if blind else [u.treatment]))
+
+
+def _about_sheet(wb: Workbook, plan: Plan) -> None:
+    ws = wb.create_sheet("about")
+    ws.column_dimensions["A"].width = 20
+    ws.column_dimensions["B"].width = 90
+    spec = plan.spec
+    d = spec.design
+    wrap = Alignment(wrap_text=True, vertical="top")
+    lines: list[tuple[str, object]] = [
+        ("study", f"{spec.study.id}: {spec.study.title}"),
+        (
+            "design",
+            f"{d.type}, {len(spec.treatments)} treatments, {len(plan.units)} {d.unit_name}s, "
+            f"{d.subsamples} {d.subsample_name}s each",
+        ),
+        ("rounds", ", ".join(r.name for r in plan.rounds)),
+        ("seed", plan.seed),
+        ("plan fingerprint", plan.fingerprint),
+        ("made by", f"layout {__version__}"),
+        ("", ""),
+        (
+            "how to fill in",
+            "Enter one value per cell in the white columns of the sheet 'entry'. Do not change the "
+            "shaded columns, do not delete rows, and keep the code in every row: rows are matched "
+            "to the plan by code, so sorting and filtering are safe.",
+        ),
+        ("when a value is missing", "Leave the value blank and choose a missing_reason. Use note for anything else."),
+        ("missing reasons", ", ".join(spec.collection.missing_reasons)),
+    ]
+    lines += [(f"response: {r.header}", allowed_text(r)) for r in spec.response]
+    for key, value in lines:
+        k = WriteOnlyCell(ws, value=key)
+        k.font = _BOLD
+        v = WriteOnlyCell(ws, value=value)
+        v.alignment = wrap
+        ws.append([k, v])
+
+
+def _hidden_sheet(wb: Workbook, plan: Plan) -> None:
+    ws = wb.create_sheet(HIDDEN_SHEET)
+    ws.sheet_state = "veryHidden"
+    ws.append(["format", ENTRY_FORMAT])
+    ws.append(["fingerprint", plan.fingerprint])
+    ws.append(["study", plan.spec.study.id])
+    ws.append(["slot", "unit", "subsample"])
+    for s in plan.slots:
+        ws.append([s.code, s.unit, s.subsample])
+
+
+def _stable_zip(data: bytes) -> bytes:
+    """The same archive with fixed entry times, so the same plan gives the same bytes."""
+    out = io.BytesIO()
+    with zipfile.ZipFile(io.BytesIO(data)) as src, zipfile.ZipFile(out, "w", zipfile.ZIP_DEFLATED) as dst:
+        for info in src.infolist():
+            fixed = zipfile.ZipInfo(info.filename, date_time=(1980, 1, 1, 0, 0, 0))
+            fixed.compress_type = zipfile.ZIP_DEFLATED
+            fixed.external_attr = 0o600 << 16
+            dst.writestr(fixed, src.read(info.filename))
+    return out.getvalue()
+
+
+def workbook_bytes(plan: Plan) -> bytes:
+    """entry.xlsx as bytes."""
+    wb = Workbook(write_only=True)
+    wb.properties.creator = f"layout {__version__}"
+    wb.properties.title = plan.spec.study.title
+    wb.properties.created = _FIXED_TIME
+    wb.properties.modified = _FIXED_TIME
+    _entry_sheet(wb, plan)
+    _units_sheet(wb, plan)
+    _about_sheet(wb, plan)
+    _hidden_sheet(wb, plan)
+    buf = io.BytesIO()
+    wb.save(buf)
+    return _stable_zip(buf.getvalue())

@@ -1,0 +1,149 @@
+"""Write the chosen outputs of a plan into a folder, never over an existing file without force."""
+
+from __future__ import annotations
+
+import tempfile
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Final
+
+from rich.console import Console
+from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+
+from layout.errors import UsageError
+from layout.files import refuse_existing, write_new
+from layout.outputs.keyfile import key_csv
+from layout.outputs.labels import LabelGeometry
+from layout.outputs.pdf import choose_engine, html_to_pdf
+from layout.outputs.printable import render_labels, render_map, render_sheets
+from layout.outputs.workbook import workbook_bytes
+from layout.plan import Plan
+
+PRODUCTS: Final = ("entry", "sheets", "labels", "map", "key")
+
+
+@dataclass(frozen=True)
+class SheetOptions:
+    """What to make and how."""
+
+    only: tuple[str, ...] = PRODUCTS
+    pdf: bool = False
+    paper: str = "a4"
+    labels: LabelGeometry = field(default_factory=LabelGeometry)
+    pdf_engine: str = "auto"
+    force: bool = False
+    progress: bool = False
+
+
+def planned_files(plan: Plan, options: SheetOptions) -> list[str]:
+    """The file names the options will write, in writing order."""
+    names: list[str] = []
+    pdf = options.pdf
+    for product in options.only:
+        if product == "entry":
+            names.append("entry.xlsx")
+        elif product == "sheets":
+            names += ["sheets.html"] + (["sheets.pdf"] if pdf else [])
+        elif product == "labels":
+            names += ["labels.html", "unit-labels.html"] + (["labels.pdf", "unit-labels.pdf"] if pdf else [])
+        elif product == "map":
+            names.append("map.html")
+            if plan.spec.study.blind:
+                names.append("map-key.html")
+        elif product == "key":
+            names.append("key.csv")
+    return names
+
+
+class _Bar:
+    """A rich progress bar on stderr, or nothing."""
+
+    def __init__(self, on: bool) -> None:
+        self.progress = (
+            Progress(
+                TextColumn("{task.description}"),
+                BarColumn(),
+                MofNCompleteColumn(),
+                TimeElapsedColumn(),
+                console=Console(stderr=True),
+                transient=True,
+            )
+            if on
+            else None
+        )
+
+    @contextmanager
+    def task(self, name: str, total: int) -> Iterator[Callable[[], None]]:
+        if self.progress is None:
+            yield lambda: None
+            return
+        task = self.progress.add_task(name, total=total)
+        yield lambda: self.progress.advance(task) if self.progress else None
+        self.progress.remove_task(task)
+
+
+def write_sheets(plan: Plan, out_dir: str | Path, options: SheetOptions | None = None) -> list[Path]:
+    """Make the chosen outputs in out_dir; returns the paths written."""
+    options = options or SheetOptions()
+    unknown = [p for p in options.only if p not in PRODUCTS]
+    if unknown:
+        raise UsageError(f"--only: {unknown[0]!r} is not one of {', '.join(PRODUCTS)}")
+    if options.paper not in ("a4", "letter"):
+        raise UsageError(f"--paper: must be a4 or letter, got {options.paper!r}")
+    options.labels.check()
+    folder = Path(out_dir)
+    names = planned_files(plan, options)
+    for name in names:  # refuse before writing anything, so a run is all or nothing
+        refuse_existing(folder / name, options.force)
+    engine = choose_engine(options.pdf_engine) if options.pdf else ""
+    written: list[Path] = []
+    bar = _Bar(options.progress)
+
+    def put(name: str, data: bytes | str) -> Path:
+        path = write_new(folder / name, data, force=options.force)
+        written.append(path)
+        return path
+
+    def pdf_of(html_name: str, html: str) -> None:
+        with tempfile.TemporaryDirectory(prefix="layout-") as tmp:
+            source = Path(tmp) / html_name
+            source.write_text(html, encoding="utf-8")
+            with bar.task(f"PDF {html_name.replace('.html', '.pdf')}", 1) as tick:
+                put(html_name.replace(".html", ".pdf"), html_to_pdf(source, engine))
+                tick()
+
+    with bar.progress or _null():
+        for product in options.only:
+            if product == "entry":
+                put("entry.xlsx", workbook_bytes(plan))
+            elif product == "sheets":
+                html = render_sheets(plan, options.paper)
+                put("sheets.html", html)
+                if options.pdf:
+                    pdf_of("sheets.html", html)
+            elif product == "labels":
+                geometry = LabelGeometry(**{**options.labels.__dict__, "paper": options.paper})
+                pages = []
+                with bar.task("slot labels", len(plan.slots)) as tick:
+                    pages.append(("labels.html", render_labels(plan, geometry, units=False, tick=tick)))
+                with bar.task("unit labels", len(plan.units)) as tick:
+                    pages.append(("unit-labels.html", render_labels(plan, geometry, units=True, tick=tick)))
+                for name, html in pages:
+                    put(name, html)
+                if options.pdf:
+                    for name, html in pages:
+                        pdf_of(name, html)
+            elif product == "map":
+                put("map.html", render_map(plan, show_treatments=not plan.spec.study.blind))
+                if plan.spec.study.blind:
+                    put("map-key.html", render_map(plan, show_treatments=True))
+            elif product == "key":
+                put("key.csv", key_csv(plan))
+    return written
+
+
+@contextmanager
+def _null() -> Iterator[None]:
+    yield

@@ -101,6 +101,17 @@ class TestDemo:
         assert result.returncode == 0, result.stderr
         assert (tmp_path / "d" / "spec.toml").exists()
         assert len(load_plan(tmp_path / "d" / "plan.json").slots) == 60
+        made = {p.name for p in (tmp_path / "d").iterdir()}
+        assert {
+            "entry.xlsx",
+            "sheets.html",
+            "labels.html",
+            "unit-labels.html",
+            "map.html",
+            "map-key.html",
+            "key.csv",
+        } <= made
+        assert {"sheets.pdf", "labels.pdf", "unit-labels.pdf"} <= made  # the test extra installs WeasyPrint
 
     def test_demo_twice_needs_force(self, tmp_path: Path) -> None:
         """Running the demo again into the same folder keeps what is there unless --force."""

@@ -17,8 +17,8 @@ from openpyxl import Workbook
 from openpyxl.cell import WriteOnlyCell
 from openpyxl.styles import Alignment, Font, PatternFill, Protection
 from openpyxl.utils import get_column_letter
-from openpyxl.worksheet.datavalidation import DataValidation
 from openpyxl.worksheet._write_only import WriteOnlyWorksheet
+from openpyxl.worksheet.datavalidation import DataValidation
 
 from layout import __version__
 from layout.outputs.entry_table import TRAILING, allowed_text, entry_rows, headers, structure_columns, structure_values

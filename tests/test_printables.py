@@ -1,0 +1,191 @@
+"""Sheets, labels and map checked by outside readers: zxing-cpp, pdftoppm, pypdf and headless Chromium."""
+
+from __future__ import annotations
+
+import re
+import subprocess
+import tempfile
+from pathlib import Path
+
+import pytest
+import zxingcpp
+from PIL import Image
+from pypdf import PdfReader
+
+from layout import Plan
+from layout.outputs import SheetOptions, write_sheets
+from layout.outputs.labels import LabelGeometry
+from layout.outputs.pdf import html_to_pdf
+from layout.outputs.printable import render_labels, render_map, render_sheets, sheet_pages
+
+DPI = 200
+MM_PER_PX = 25.4 / DPI
+CHROMIUM_FLAGS = [
+    "--headless",
+    "--no-sandbox",
+    "--disable-gpu",
+    "--no-first-run",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+]
+
+
+def rasterize(pdf: Path, pdftoppm: str, out: Path) -> list[Path]:
+    """Every page of pdf as a PNG at 200 dpi, by poppler's pdftoppm."""
+    subprocess.run([pdftoppm, "-r", str(DPI), "-png", str(pdf), str(out / "page")], check=True, timeout=300)
+    return sorted(out.glob("page-*.png"), key=lambda p: int(re.findall(r"\d+", p.stem)[-1]))
+
+
+def decode(png: Path) -> list[tuple[str, float, float]]:
+    """(text, centre x mm, centre y mm) of every QR symbol zxing-cpp finds on a page."""
+    found = []
+    for r in zxingcpp.read_barcodes(Image.open(png), formats=zxingcpp.BarcodeFormat.QRCode):
+        p = r.position
+        xs = [p.top_left.x, p.top_right.x, p.bottom_left.x, p.bottom_right.x]
+        ys = [p.top_left.y, p.top_right.y, p.bottom_left.y, p.bottom_right.y]
+        found.append((r.text, sum(xs) / 4 * MM_PER_PX, sum(ys) / 4 * MM_PER_PX))
+    return found
+
+
+def pdf_of(html: str, engine: str, tmp: Path, name: str) -> Path:
+    source = tmp / f"{name}.html"
+    source.write_text(html, encoding="utf-8")
+    target = tmp / f"{name}.pdf"
+    target.write_bytes(html_to_pdf(source, engine))
+    return target
+
+
+@pytest.fixture(params=["weasyprint", "chromium"])
+def engine(request: pytest.FixtureRequest) -> str:
+    if request.param == "chromium":
+        return request.getfixturevalue("chromium")
+    return "weasyprint"
+
+
+class TestLabels:
+    @pytest.mark.parametrize("units", [False, True], ids=["slot-labels", "unit-labels"])
+    def test_every_code_decodes_once_at_its_place(
+        self, units: bool, crd_plan: Plan, engine: str, pdftoppm: str, tmp_path: Path
+    ) -> None:
+        """Rasterized at 200 dpi, zxing-cpp reads exactly the planned codes, one symbol each, within 0.5 mm of the geometry."""
+        g = LabelGeometry()
+        pdf = pdf_of(render_labels(crd_plan, g, units=units), engine, tmp_path, "labels")
+        codes = [u.code for u in crd_plan.units] if units else [s.code for s in crd_plan.slots]
+        pages = rasterize(pdf, pdftoppm, tmp_path)
+        assert len(pages) == -(-len(codes) // g.per_page)
+        seen: list[str] = []
+        for page_no, png in enumerate(pages):
+            for text, cx, cy in decode(png):
+                index = codes.index(text)
+                assert index // g.per_page == page_no
+                x, y = g.position(index)
+                assert abs(cx - (x + 1.5 + g.qr_size / 2)) < 0.5, (text, cx)
+                assert abs(cy - (y + g.height / 2)) < 0.5, (text, cy)
+                seen.append(text)
+        assert sorted(seen) == sorted(codes)
+
+    def test_label_printer_one_per_page(self, crd_plan: Plan, engine: str, pdftoppm: str, tmp_path: Path) -> None:
+        """With single labels of 50 x 25 mm each page is one label of that size holding its unit's code."""
+        g = LabelGeometry(width=50, height=25, single=True)
+        pdf = pdf_of(render_labels(crd_plan, g, units=True), engine, tmp_path, "single")
+        reader = PdfReader(pdf)
+        assert len(reader.pages) == len(crd_plan.units)
+        box = reader.pages[0].mediabox
+        assert abs(float(box.width) / 72 * 25.4 - 50) < 0.5 and abs(float(box.height) / 72 * 25.4 - 25) < 0.5
+        pages = rasterize(pdf, pdftoppm, tmp_path)
+        assert [[t for t, _, _ in decode(p)] for p in pages] == [[u.code] for u in crd_plan.units]
+
+
+class TestSheets:
+    def test_pdf_text_holds_every_slot_code(self, rcbd_plan: Plan, engine: str, tmp_path: Path) -> None:
+        """pypdf finds every slot code in sheets.pdf, and one page per planned sheet page."""
+        pdf = pdf_of(render_sheets(rcbd_plan), engine, tmp_path, "sheets")
+        reader = PdfReader(pdf)
+        pages, _ = sheet_pages(rcbd_plan, "a4")
+        assert len(reader.pages) == len(pages)
+        text = "\n".join(p.extract_text() for p in reader.pages)
+        missing = [s.code for s in rcbd_plan.slots if s.code not in text]
+        assert missing == []
+        assert f"page {len(pages)} of {len(pages)}" in text
+
+    def test_pages_grouped_by_round_and_block(self, rcbd_plan: Plan) -> None:
+        """Every sheet page holds one round and one block, in collection order."""
+        pages, _ = sheet_pages(rcbd_plan, "a4")
+        for page in pages:
+            assert {r.round for r in page.rows} == {page.round}
+            assert {r.unit.block for r in page.rows} == {page.block}
+        assert [p.number for p in pages] == list(range(1, len(pages) + 1))
+
+    @pytest.mark.parametrize("paper", ["a4", "letter"])
+    def test_paper_size(self, rcbd_plan: Plan, paper: str, tmp_path: Path) -> None:
+        """--paper sets the PDF page size (A4 210 × 297 mm, letter 215.9 × 279.4 mm)."""
+        pdf = pdf_of(render_sheets(rcbd_plan, paper), "weasyprint", tmp_path, "sheets")
+        box = PdfReader(pdf).pages[0].mediabox
+        size = sorted((round(float(box.width) / 72 * 25.4, 1), round(float(box.height) / 72 * 25.4, 1)))
+        assert size == ([210.0, 297.0] if paper == "a4" else [215.9, 279.4])
+
+
+class TestBlind:
+    def test_no_treatment_in_collector_outputs(self, blind_plan: Plan, chromium: str, tmp_path: Path) -> None:
+        """For a blind study no treatment label is in entry.xlsx (any sheet), the sheets, labels or map, HTML or PDF."""
+        import openpyxl
+
+        written = write_sheets(blind_plan, tmp_path, SheetOptions(pdf=True, pdf_engine=chromium))
+        names = {p.name for p in written}
+        assert {"key.csv", "map-key.html"} <= names
+        collector = [p for p in written if p.name not in ("key.csv", "map-key.html")]
+        treatments = blind_plan.spec.treatments
+        for path in collector:
+            if path.suffix == ".xlsx":
+                wb = openpyxl.load_workbook(path)
+                text = " ".join(str(c) for ws in wb.worksheets for row in ws.iter_rows(values_only=True) for c in row)
+            elif path.suffix == ".pdf":
+                text = " ".join(p.extract_text() for p in PdfReader(path).pages)
+            else:
+                text = path.read_text(encoding="utf-8")
+            leaked = [t for t in treatments if t in text]
+            assert leaked == [], path.name
+        key = (tmp_path / "key.csv").read_text()
+        assert all(t in key for t in treatments)
+
+
+MEASURE = """<script>
+window.addEventListener('load', () => {
+  const bad = [];
+  document.querySelectorAll('table').forEach(t => {
+    const page = t.closest('.page').getBoundingClientRect();
+    const box = t.getBoundingClientRect();
+    if (box.right > page.right + 0.5 || t.scrollWidth > t.clientWidth + 1) bad.push(Math.round(box.right - page.right));
+  });
+  document.body.setAttribute('data-overflow', bad.length ? bad.join(',') : 'none');
+});
+</script>"""
+
+
+class TestInBrowser:
+    @pytest.mark.parametrize("page", ["sheets", "map", "map-key"])
+    @pytest.mark.parametrize("plan_name", ["crd_plan", "rcbd_plan", "blind_plan"])
+    def test_no_table_wider_than_page(
+        self, page: str, plan_name: str, chromium: str, request: pytest.FixtureRequest, tmp_path: Path
+    ) -> None:
+        """Headless Chromium lays out every table inside its page."""
+        plan = request.getfixturevalue(plan_name)
+        html = render_sheets(plan) if page == "sheets" else render_map(plan, show_treatments=page == "map-key")
+        source = tmp_path / "page.html"
+        source.write_text(html.replace("</body>", MEASURE + "</body>"), encoding="utf-8")
+        with tempfile.TemporaryDirectory() as profile:
+            dom = subprocess.run(
+                [
+                    chromium,
+                    *CHROMIUM_FLAGS,
+                    f"--user-data-dir={profile}",
+                    "--virtual-time-budget=5000",
+                    "--dump-dom",
+                    source.as_uri(),
+                ],
+                capture_output=True,
+                text=True,
+                timeout=120,
+            ).stdout
+        assert 'data-overflow="none"' in dom, re.findall(r'data-overflow="[^"]*"', dom)

@@ -1,0 +1,142 @@
+"""entry.xlsx read back by outside readers: python-calamine, openpyxl and LibreOffice Calc."""
+
+from __future__ import annotations
+
+import csv
+import subprocess
+from pathlib import Path
+
+import openpyxl
+import pytest
+from python_calamine import CalamineWorkbook
+
+from layout import Plan
+from layout.outputs.entry_table import entry_rows, headers
+from layout.outputs.workbook import HIDDEN_SHEET, workbook_bytes
+
+
+@pytest.fixture()
+def entry(tmp_path: Path, rcbd_plan: Plan) -> Path:
+    path = tmp_path / "entry.xlsx"
+    path.write_bytes(workbook_bytes(rcbd_plan))
+    return path
+
+
+class TestReadBack:
+    def test_calamine_gives_planned_rows(self, entry: Path, rcbd_plan: Plan) -> None:
+        """python-calamine reads exactly one row per slot and round, in collection order, with the planned codes."""
+        rows = CalamineWorkbook.from_path(str(entry)).get_sheet_by_name("entry").to_python()
+        assert rows[0] == headers(rcbd_plan)
+        planned = entry_rows(rcbd_plan)
+        assert len(rows) - 1 == len(planned) == len(rcbd_plan.slots) * 2
+        assert [(r[0], r[1], r[6]) for r in rows[1:]] == [(p.code, p.unit.code, p.round) for p in planned]
+        slot_unit = {s.code: s.unit for s in rcbd_plan.slots}
+        assert all(slot_unit[r[0]] == r[1] for r in rows[1:])
+
+    def test_header_names(self, rcbd_plan: Plan) -> None:
+        """The header follows the contract: structure, treatment when not blind, responses with units, reason, note."""
+        assert headers(rcbd_plan) == [
+            "code",
+            "unit",
+            "block",
+            "row",
+            "col",
+            "subsample",
+            "round",
+            "treatment",
+            "moisture (%)",
+            "nitrate (mg/kg)",
+            "sampled_on",
+            "missing_reason",
+            "note",
+        ]
+
+    def test_units_and_about_sheets(self, entry: Path, rcbd_plan: Plan) -> None:
+        """The units sheet lists every unit; the about sheet gives seed and fingerprint."""
+        book = CalamineWorkbook.from_path(str(entry))
+        units = book.get_sheet_by_name("units").to_python()
+        assert [r[0] for r in units[1:]] == [u.code for u in rcbd_plan.units]
+        about = {r[0]: r[1] for r in book.get_sheet_by_name("about").to_python() if r and r[0]}
+        assert about["plan fingerprint"] == rcbd_plan.fingerprint
+        assert int(about["seed"]) == rcbd_plan.seed
+
+    def test_same_bytes_every_time(self, rcbd_plan: Plan) -> None:
+        """The same plan gives the same workbook, byte for byte."""
+        assert workbook_bytes(rcbd_plan) == workbook_bytes(rcbd_plan)
+
+
+class TestProtectionAndValidation:
+    def test_validation_ranges_match_spec(self, entry: Path, rcbd_plan: Plan) -> None:
+        """Each response column's data validation (read by openpyxl) has the spec's type and range."""
+        ws = openpyxl.load_workbook(entry)["entry"]
+        head = [c.value for c in ws[1]]
+        by_col = {str(dv.sqref).split(":")[0].rstrip("0123456789"): dv for dv in ws.data_validations.dataValidation}
+        last = len(entry_rows(rcbd_plan)) + 1
+        for r in rcbd_plan.spec.response:
+            col = openpyxl.utils.get_column_letter(head.index(r.header) + 1)
+            dv = by_col[col]
+            assert str(dv.sqref) == f"{col}2:{col}{last}"
+            if r.kind == "number":
+                assert (dv.type, float(dv.formula1), float(dv.formula2)) == ("decimal", r.min, r.max)
+            elif r.kind == "date":
+                assert dv.type == "date"
+            assert r.name in dv.promptTitle and dv.showInputMessage
+        reason_col = openpyxl.utils.get_column_letter(head.index("missing_reason") + 1)
+        assert by_col[reason_col].type == "list"
+        assert by_col[reason_col].formula1 == '"' + ",".join(rcbd_plan.spec.collection.missing_reasons) + '"'
+
+    def test_category_list_and_whole_numbers(self, tmp_path: Path, crd_plan: Plan) -> None:
+        """Categories get a list validation; integer responses a whole-number one."""
+        path = tmp_path / "e.xlsx"
+        path.write_bytes(workbook_bytes(crd_plan))
+        ws = openpyxl.load_workbook(path)["entry"]
+        types = {dv.type: dv for dv in ws.data_validations.dataValidation}
+        assert types["list"].formula1 in ('"healthy,wilted,damaged"', '"dead,lost,damaged,not measured"')
+        lists = sorted(dv.formula1 for dv in ws.data_validations.dataValidation if dv.type == "list")
+        assert lists == ['"dead,lost,damaged,not measured"', '"healthy,wilted,damaged"']
+
+    def test_locked_structure_open_inputs(self, entry: Path, rcbd_plan: Plan) -> None:
+        """Structure cells are locked, input cells unlocked, the sheet protected without a password."""
+        ws = openpyxl.load_workbook(entry)["entry"]
+        assert ws.protection.sheet and not ws.protection.password
+        n_struct = 8
+        row = list(ws[2])
+        assert all(c.protection.locked for c in row[:n_struct])
+        assert not any(c.protection.locked for c in row[n_struct:])
+        assert ws.freeze_panes == "B2" and ws.print_title_rows == "$1:$1"
+        assert ws.page_setup.orientation == "landscape" and ws.sheet_properties.pageSetUpPr.fitToPage
+
+    def test_very_hidden_sheet(self, entry: Path, rcbd_plan: Plan) -> None:
+        """A very hidden sheet holds the fingerprint and the slot list."""
+        wb = openpyxl.load_workbook(entry)
+        ws = wb[HIDDEN_SHEET]
+        assert ws.sheet_state == "veryHidden"
+        rows = list(ws.values)
+        assert rows[1][:2] == ("fingerprint", rcbd_plan.fingerprint)
+        assert [r[0] for r in rows[4:]] == [s.code for s in rcbd_plan.slots]
+
+
+class TestLibreOffice:
+    def test_calc_opens_and_exports_same_rows(self, entry: Path, rcbd_plan: Plan, soffice: str, tmp_path: Path) -> None:
+        """LibreOffice Calc (headless --convert-to csv) opens entry.xlsx and exports the planned rows."""
+        out = tmp_path / "lo"
+        profile = tmp_path / "profile"
+        subprocess.run(
+            [
+                soffice,
+                f"-env:UserInstallation={profile.as_uri()}",
+                "--headless",
+                "--convert-to",
+                "csv",
+                "--outdir",
+                str(out),
+                str(entry),
+            ],
+            check=True,
+            capture_output=True,
+            timeout=180,
+        )
+        with (out / "entry.csv").open(newline="", encoding="utf-8") as fh:
+            rows = list(csv.reader(fh))
+        assert rows[0] == headers(rcbd_plan)
+        assert [r[0] for r in rows[1:]] == [p.code for p in entry_rows(rcbd_plan)]

@@ -14,6 +14,9 @@ from rich.table import Table
 from layout import __version__
 from layout.demo import run_demo
 from layout.errors import LayoutError, UsageError
+from layout.intake.check import check_returns
+from layout.intake.findings import Severity
+from layout.intake.report import write_report
 from layout.outputs import PRODUCTS, SheetOptions, write_sheets
 from layout.outputs.labels import LabelGeometry, parse_pair
 from layout.plan import Plan, load_plan, make_plan
@@ -39,6 +42,14 @@ _EPILOG_SHEETS = """example:
 Makes entry.xlsx, sheets.html, labels.html, unit-labels.html, map.html (and map-key.html
 for a blind study) and key.csv from the plan alone. An existing file, such as a
 filled-in entry.xlsx, is never replaced without --force."""
+
+_EPILOG_CHECK = """example:
+  layout check plan.json returns/*.xlsx returns/*.csv -o checked
+  layout check plan.json entry-anna.xlsx entry-ben.csv --force
+
+Reads any mix of returned .xlsx and .csv files (read-only; they are never changed),
+matches rows to the plan by code, and writes report.json, report.html and tidy.csv.
+Exit 0: no errors; 1: errors found; 2: unusable arguments or plan."""
 
 _EPILOG_DEMO = """example:
   layout demo              # into ./layout-demo
@@ -129,12 +140,60 @@ def _sheets(args: argparse.Namespace) -> int:
     return 0
 
 
+def print_check_summary(result, written: list[Path]) -> None:  # type: ignore[no-untyped-def]
+    """Counts by kind and the first findings."""
+    s = result.summary
+    out.print(
+        f"{s['study']}: {s['slots_found']} of {s['slots_expected']} slot-rounds found in {len(s['files'])} file(s)"
+    )
+    table = Table()
+    for col in ("kind", "severity", "count"):
+        table.add_column(col, justify="right" if col == "count" else "left")
+    sev = {f.kind.value: f.severity.value for f in result.findings}
+    for kind, n in s["by_kind"].items():
+        table.add_row(kind, sev[kind], str(n))
+    if s["by_kind"]:
+        out.print(table)
+    first = [f for f in result.findings if f.severity is not Severity.INFO][:12]
+    for f in first:
+        out.print(
+            f"{f.severity.value}: {f.where + ': ' if f.where else ''}{f.message}",
+            style="red" if f.severity is Severity.ERROR else "yellow",
+        )
+    rest = len([f for f in result.findings if f.severity is not Severity.INFO]) - len(first)
+    if rest > 0:
+        out.print(f"... and {rest} more in report.html")
+    errors = s["by_severity"]["error"]
+    out.print(
+        f"{errors} error(s), {s['by_severity']['warning']} warning(s), {s['by_severity']['info']} note(s)",
+        style="bold red" if errors else "bold green",
+    )
+    for path in written:
+        out.print(f"  wrote {path}")
+
+
+def _check(args: argparse.Namespace) -> int:
+    plan = load_plan(args.plan)
+    for path in args.returned:
+        if not Path(path).exists():
+            raise UsageError(f"{path}: no such file; name the returned .xlsx and .csv files to check")
+    result = check_returns(plan, args.returned)
+    folder = Path(args.output) if args.output else Path(args.plan).parent / "checked"
+    written = write_report(plan, result, folder, force=args.force, unblind=args.unblind)
+    print_check_summary(result, written)
+    return 1 if result.errors else 0
+
+
 def _demo(args: argparse.Namespace) -> int:
     result = run_demo(args.folder, force=args.force, progress=True)
     print_plan_summary(result.plan, None)
     out.print(f"\nThe demo wrote {len(result.written)} files into {result.folder}:")
     for path in result.written:
         out.print(f"  {path}")
+    if result.check is not None:
+        out.print("\nThe demo then filled the workbook with invented values, added a re-typed CSV with two planted")
+        out.print("mistakes, and checked both:")
+        print_check_summary(result.check, [])
     if not result.pdf:
         out.print("No PDF engine was found, so no PDFs were made: pip install 'layout[pdf]' or install Chromium.")
     return 0
@@ -213,6 +272,26 @@ def build_parser() -> argparse.ArgumentParser:
         "--force", action="store_true", help="replace existing files (a filled-in workbook would be lost!)"
     )
     sheets.set_defaults(run=_sheets)
+
+    check = sub.add_parser(
+        "check",
+        help="check returned workbooks and CSV files against the plan",
+        epilog=_EPILOG_CHECK,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    check.add_argument("plan", metavar="PLAN", help="plan.json made by 'layout plan'")
+    check.add_argument("returned", metavar="RETURNED", nargs="+", help="returned .xlsx and .csv files")
+    check.add_argument(
+        "-o",
+        "--output",
+        metavar="DIR",
+        help="folder for report.json, report.html, tidy.csv (default: checked/ beside the plan)",
+    )
+    check.add_argument("--force", action="store_true", help="replace an earlier report in that folder")
+    check.add_argument(
+        "--unblind", action="store_true", help="group the report's plots by treatment even for a blind study"
+    )
+    check.set_defaults(run=_check)
     return parser
 
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Final
+from typing import Any, Final
 
 from layout.errors import UsageError
 from layout.files import write_new
@@ -70,6 +70,7 @@ class DemoResult:
     plan: Plan
     written: list[Path] = field(default_factory=list)
     pdf: bool = False
+    check: Any = None
 
 
 def run_demo(folder: str | Path, force: bool = False, progress: bool = False) -> DemoResult:
@@ -87,4 +88,38 @@ def run_demo(folder: str | Path, force: bool = False, progress: bool = False) ->
     options = SheetOptions(pdf=pdf, force=force, progress=progress)
     result.written += write_sheets(plan, out, options)
     result.pdf = pdf
+    result.written += _returns_and_check(plan, out, force, result)
     return result
+
+
+# A second person re-typed three rows from their paper sheet: one agrees, one disagrees,
+# and one code has two characters swapped. The check should catch the last two.
+def _recheck_csv(plan: Plan, filled: dict) -> str:
+    rows = [s for s in plan.slots[3:6]]
+    lines = ["code;round;height (mm);leaves;condition;missing_reason;note"]
+    for i, s in enumerate(rows):
+        f = filled[(s.code, "day14")]
+        height = f.values.get("height", "")
+        if i == 1 and height != "":
+            height = height + 12
+        code = s.code if i != 2 else s.code[:6] + s.code[7] + s.code[6] + s.code[8:]  # BC26-002-3E → BC26-020-3E
+        lines.append(
+            f"{code};day14;{height};{f.values.get('leaves', '')};{f.values.get('condition', '')};{f.reason or ''};re-typed"
+        )
+    return "\n".join(lines) + "\n"
+
+
+def _returns_and_check(plan: Plan, out: Path, force: bool, result: DemoResult) -> list[Path]:
+    from layout.intake.check import check_returns
+    from layout.intake.report import write_report
+    from layout.simulate import fill_workbook, simulate
+
+    filled = simulate(plan)
+    returns = out / "returns"
+    written = [
+        fill_workbook(plan, out / "entry.xlsx", returns / "entry-filled.xlsx", filled, force=force),
+        write_new(returns / "recheck.csv", _recheck_csv(plan, filled), force=force),
+    ]
+    result.check = check_returns(plan, written)
+    written += write_report(plan, result.check, out / "checked", force=force)
+    return written

@@ -1,0 +1,146 @@
+"""Read returned workbooks and CSV files, read-only, into plain rows of cells.
+
+Workbooks are read with python-calamine (values, including cached results of formulas);
+openpyxl in read-only mode is opened only when a sheet holds formulas, to say which cells
+they are. CSV files may be UTF-8 with or without a byte-order mark, comma, semicolon or
+tab separated; semicolon files may use decimal commas.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import zipfile
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Final
+
+from python_calamine import CalamineWorkbook
+
+from layout.outputs.workbook import HIDDEN_SHEET
+
+MAX_UNPACKED: Final = 512 * 1024 * 1024  # a workbook that unpacks larger than this is refused (zip bombs)
+HEADER_SEARCH_ROWS: Final = 20
+
+
+class UnreadableFile(Exception):
+    """A returned file that cannot be read safely; the message says why."""
+
+
+@dataclass
+class ReturnedTable:
+    """The cells of one returned file, with spreadsheet row numbers."""
+
+    file: str
+    headers: list[str]
+    header_row: int
+    rows: list[tuple[int, list[Any]]]
+    fingerprint: str | None = None
+    formulas: set[tuple[int, int]] = field(default_factory=set)
+    decimal_comma: bool = False
+    sheet: str | None = None
+
+
+def read_returned(path: str | Path) -> ReturnedTable:
+    """Read an .xlsx or .csv return; UnreadableFile when that cannot be done safely."""
+    p = Path(path)
+    if not p.is_file():
+        raise UnreadableFile("no such file" if not p.exists() else "not a file")
+    suffix = p.suffix.lower()
+    if suffix in (".xlsx", ".xlsm"):
+        return _read_xlsx(p)
+    if suffix in (".csv", ".txt", ".tsv"):
+        return _read_csv(p)
+    raise UnreadableFile(f"not a workbook or CSV file (ending {suffix or 'none'}); return .xlsx or .csv files")
+
+
+def _header_at(rows: list[list[Any]]) -> int:
+    """Index of the first row holding a 'code' cell (people add title rows above)."""
+    for i, row in enumerate(rows[:HEADER_SEARCH_ROWS]):
+        if any(isinstance(c, str) and c.strip().lower() == "code" for c in row):
+            return i
+    return -1
+
+
+def _table(file: str, rows: list[list[Any]], **extra: Any) -> ReturnedTable:
+    at = _header_at(rows)
+    if at < 0:
+        return ReturnedTable(file, [], 0, [], **extra)
+    headers = ["" if c is None else str(c) for c in rows[at]]
+    body = [(at + 2 + i, list(r)) for i, r in enumerate(rows[at + 1 :])]
+    return ReturnedTable(file, headers, at + 1, body, **extra)
+
+
+def _read_xlsx(p: Path) -> ReturnedTable:
+    try:
+        with zipfile.ZipFile(p) as z:
+            if sum(i.file_size for i in z.infolist()) > MAX_UNPACKED:
+                raise UnreadableFile("unpacks to more than 512 MB; refused as unsafe")
+            sheets_with_formulas = any(
+                n.startswith("xl/worksheets/") and (b"<f>" in (data := z.read(n)) or b"<f " in data)
+                for n in z.namelist()
+            )
+    except zipfile.BadZipFile:
+        raise UnreadableFile("not a valid .xlsx workbook (the file is damaged or of another format)") from None
+    try:
+        book = CalamineWorkbook.from_path(str(p))
+        names = book.sheet_names
+        name = next((n for n in names if n.strip().lower() == "entry"), None)
+        visible = [m.name for m in book.sheets_metadata if str(m.visible).lower().endswith("visible")]
+        name = name or (visible[0] if visible else names[0])
+        rows = book.get_sheet_by_name(name).to_python(skip_empty_area=False)
+        fingerprint = None
+        if HIDDEN_SHEET in names:
+            for row in book.get_sheet_by_name(HIDDEN_SHEET).to_python(skip_empty_area=False)[:5]:
+                if len(row) >= 2 and row[0] == "fingerprint":
+                    fingerprint = str(row[1])
+    except UnreadableFile:
+        raise
+    except Exception as exc:  # calamine raises its own error types for damaged files
+        raise UnreadableFile(f"cannot be read as a workbook ({type(exc).__name__}: {exc})") from None
+    table = _table(str(p), [list(r) for r in rows], fingerprint=fingerprint, sheet=name)
+    if sheets_with_formulas:
+        table.formulas = _formula_cells(p, name)
+    return table
+
+
+def _formula_cells(p: Path, sheet: str) -> set[tuple[int, int]]:
+    """(row, column index) of every formula cell of a sheet, by openpyxl in read-only mode."""
+    from openpyxl import load_workbook
+
+    found: set[tuple[int, int]] = set()
+    wb = load_workbook(p, read_only=True, data_only=False)
+    try:
+        for row in wb[sheet].iter_rows():
+            for cell in row:
+                if getattr(cell, "data_type", None) == "f":
+                    found.add((cell.row, cell.column - 1))
+    finally:
+        wb.close()
+    return found
+
+
+def _read_csv(p: Path) -> ReturnedTable:
+    raw = p.read_bytes()
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise UnreadableFile(f"is not UTF-8 text (byte {exc.start}); save it as 'CSV UTF-8'") from None
+    if "\x00" in text:
+        raise UnreadableFile("holds NUL characters: not a text CSV file")
+    first = next((line for line in text.splitlines() if line.strip()), "")
+    delimiter = max([",", ";", "\t"], key=first.count) if first else ","
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
+    rows: list[list[Any]] = []
+    numbers: list[int] = []
+    try:
+        for row in reader:
+            rows.append(row)
+            numbers.append(reader.line_num)
+    except csv.Error as exc:
+        raise UnreadableFile(f"is not valid CSV near line {reader.line_num}: {exc}") from None
+    table = _table(str(p), rows, decimal_comma=delimiter == ";")
+    # csv line numbers, not row indexes, so a quoted line break does not shift the row numbers
+    offset = table.header_row
+    table.rows = [(numbers[offset + i], r) for i, (_, r) in enumerate(table.rows)]
+    return table

@@ -1,0 +1,151 @@
+"""report.json, report.html and tidy.csv from a CheckResult."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import Any, Final
+
+from layout import __version__
+from layout.files import refuse_existing, write_new
+from layout.intake.check import CheckResult
+from layout.outputs.printable import BLOCK_COLOURS, _css, _env, _map_grid
+from layout.plan import Plan
+
+STATUS_COLOURS: Final = {
+    "ok": "#cfe8d6",
+    "declared-missing": "#d6e3f5",
+    "missing": "#f3c6c6",
+    "error": "#f3c6c6",
+    "conflict": "#f7d9a8",
+    "partial": "#f7ecb5",
+}
+REPORT_FILES: Final = ("report.json", "report.html", "tidy.csv")
+
+
+def report_json(result: CheckResult) -> str:
+    """The machine-readable report."""
+    data = {
+        "format": "layout-report/1",
+        "tool": {"name": "layout", "version": __version__},
+        "summary": result.summary,
+        "findings": [f.to_dict() for f in result.findings],
+    }
+    return json.dumps(data, indent=1, ensure_ascii=False, default=str) + "\n"
+
+
+def _unit_status(result: CheckResult) -> dict[tuple[str, str], str]:
+    """(unit, round) → the worst status of its slots."""
+    order = ["ok", "declared-missing", "partial", "conflict", "error", "missing"]
+    status: dict[tuple[str, str], list[str]] = {}
+    tidy = result.tidy[result.tidy["status"] != "unmatched"]
+    for unit, rnd, s in zip(tidy["unit"], tidy["round"], tidy["status"], strict=True):
+        status.setdefault((unit, rnd), []).append(s)
+    out = {}
+    for key, values in status.items():
+        if "missing" in values and not all(v == "missing" for v in values):
+            values = [v if v != "missing" else "partial" for v in values]
+        out[key] = max(values, key=order.index)
+    return out
+
+
+def _strip_plots(plan: Plan, result: CheckResult, unblind: bool) -> list[dict[str, Any]]:
+    """Per numeric response and round: dot positions for a small SVG of subsample values per unit."""
+    tidy = result.tidy[result.tidy["status"] != "unmatched"]
+    blind = plan.spec.study.blind and not unblind
+    if blind:
+        order = [u.code for u in plan.units]
+    else:
+        rank = {t: i for i, t in enumerate(plan.spec.treatments)}
+        order = [u.code for u in sorted(plan.units, key=lambda u: (rank[u.treatment], u.serial))]
+    treatment_of = {u.code: u.treatment for u in plan.units}
+    plots = []
+    step, left, height, top = 14, 46, 150, 10
+    for r in plan.spec.response:
+        if r.kind not in ("number", "integer"):
+            continue
+        for rnd in plan.rounds:
+            part = tidy[(tidy["round"] == rnd.name) & tidy[r.name].notna()]
+            if part.empty:
+                continue
+            vals = part[r.name].astype(float)
+            lo, hi = float(vals.min()), float(vals.max())
+            span = hi - lo or 1.0
+            y = lambda v: top + height - (float(v) - lo) / span * height  # noqa: E731
+            dots = []
+            for code, unit, value in zip(part["code"], part["unit"], vals, strict=True):
+                flagged = (code, rnd.name, r.name) in result.outliers
+                swapped = (unit, rnd.name) in result.swaps
+                dots.append(
+                    {
+                        "x": left + order.index(unit) * step + step / 2,
+                        "y": round(y(value), 1),
+                        "cls": "out" if flagged else "swap" if swapped else "",
+                        "title": f"{code}: {value:g}",
+                    }
+                )
+            groups = []
+            if not blind:
+                start = 0
+                for t in plan.spec.treatments:
+                    n = sum(1 for c in order if treatment_of[c] == t)
+                    groups.append({"x": left + start * step, "w": n * step, "label": t})
+                    start += n
+            plots.append(
+                {
+                    "response": r.header,
+                    "round": rnd.name,
+                    "dots": dots,
+                    "groups": groups,
+                    "width": left + len(order) * step + 10,
+                    "height": height + top + 34,
+                    "lo": f"{lo:g}",
+                    "hi": f"{hi:g}",
+                    "y_lo": top + height,
+                    "y_hi": top,
+                    "left": left,
+                    "base": top + height + 14,
+                }
+            )
+    return plots
+
+
+def report_html(plan: Plan, result: CheckResult, unblind: bool = False) -> str:
+    """The human report: summary, findings, completeness map and strip plots."""
+    cells, is_grid = _map_grid(plan)
+    status = _unit_status(result)
+    return (
+        _env()
+        .get_template("report.html")
+        .render(
+            study=plan.spec.study,
+            design=plan.spec.design,
+            fingerprint=plan.fingerprint,
+            version=__version__,
+            css=_css("print.css"),
+            summary=result.summary,
+            findings=result.findings,
+            rounds=[r.name for r in plan.rounds],
+            cells=cells,
+            is_grid=is_grid,
+            status=status,
+            status_colours=STATUS_COLOURS,
+            plots=_strip_plots(plan, result, unblind),
+            block_colours=BLOCK_COLOURS,
+            errors=result.errors,
+        )
+    )
+
+
+def write_report(
+    plan: Plan, result: CheckResult, out_dir: str | Path, force: bool = False, unblind: bool = False
+) -> list[Path]:
+    """Write report.json, report.html and tidy.csv; refuses existing files unless force."""
+    folder = Path(out_dir)
+    for name in REPORT_FILES:
+        refuse_existing(folder / name, force)
+    return [
+        write_new(folder / "report.json", report_json(result), force),
+        write_new(folder / "report.html", report_html(plan, result, unblind), force),
+        write_new(folder / "tidy.csv", result.tidy.to_csv(index=False, lineterminator="\n"), force),
+    ]

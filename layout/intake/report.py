@@ -71,7 +71,6 @@ def _strip_plots(plan: Plan, result: CheckResult, unblind: bool) -> list[dict[st
             vals = part[r.name].astype(float)
             lo, hi = float(vals.min()), float(vals.max())
             span = hi - lo or 1.0
-            y = lambda v: top + height - (float(v) - lo) / span * height  # noqa: E731
             dots = []
             for code, unit, value in zip(part["code"], part["unit"], vals, strict=True):
                 flagged = (code, rnd.name, r.name) in result.outliers
@@ -79,7 +78,7 @@ def _strip_plots(plan: Plan, result: CheckResult, unblind: bool) -> list[dict[st
                 dots.append(
                     {
                         "x": left + order.index(unit) * step + step / 2,
-                        "y": round(y(value), 1),
+                        "y": round(top + height - (float(value) - lo) / span * height, 1),
                         "cls": "out" if flagged else "swap" if swapped else "",
                         "title": f"{code}: {value:g}",
                     }

@@ -71,3 +71,16 @@ class TestExitCodes:
         assert main(["check", str(plan), str(filled), "-o", str(out)]) == 2
         assert (out / "report.json").read_bytes() == before
         assert main(["check", str(plan), str(filled), "-o", str(out), "--force"]) == 0
+
+
+class TestApi:
+    def test_check_returns_gives_findings_and_dataframe(self, setup: tuple[Path, Path], rcbd_plan: Plan) -> None:
+        """layout.check_returns(plan, paths) unpacks into the findings and a pandas DataFrame."""
+        import pandas as pd
+
+        import layout
+
+        _, filled = setup
+        findings, tidy = layout.check_returns(rcbd_plan, [filled])
+        assert isinstance(tidy, pd.DataFrame) and len(tidy) == len(rcbd_plan.slots) * 2
+        assert all(f.severity.value != "error" for f in findings)

@@ -31,6 +31,10 @@ class CheckResult:
     outliers: set[tuple[str, str, str]] = field(default_factory=set)  # (slot, round, response)
     swaps: set[tuple[str, str]] = field(default_factory=set)  # (unit, round)
 
+    def __iter__(self):  # type: ignore[no-untyped-def]
+        """So that ``findings, tidy = check_returns(plan, paths)`` works."""
+        return iter((self.findings, self.tidy))
+
     @property
     def errors(self) -> int:
         """How many findings are errors."""

@@ -100,7 +100,10 @@ def _read_xlsx(p: Path) -> ReturnedTable:
         raise UnreadableFile(f"cannot be read as a workbook ({type(exc).__name__}: {exc})") from None
     table = _table(str(p), [list(r) for r in rows], fingerprint=fingerprint, sheet=name)
     if sheets_with_formulas:
-        table.formulas = _formula_cells(p, name)
+        try:
+            table.formulas = _formula_cells(p, name)
+        except Exception:  # the values were read; only the formula warning is lost
+            table.formulas = set()
     return table
 
 

@@ -154,7 +154,8 @@ def print_check_summary(result, written: list[Path]) -> None:  # type: ignore[no
         table.add_row(kind, sev[kind], str(n))
     if s["by_kind"]:
         out.print(table)
-    first = [f for f in result.findings if f.severity is not Severity.INFO][:12]
+    ranked = sorted(result.findings, key=lambda f: f.severity is not Severity.ERROR)
+    first = [f for f in ranked if f.severity is not Severity.INFO][:12]
     for f in first:
         out.print(
             f"{f.severity.value}: {f.where + ': ' if f.where else ''}{f.message}",
@@ -191,8 +192,10 @@ def _demo(args: argparse.Namespace) -> int:
     for path in result.written:
         out.print(f"  {path}")
     if result.check is not None:
-        out.print("\nThe demo then filled the workbook with invented values, added a re-typed CSV with two planted")
-        out.print("mistakes, and checked both:")
+        out.print(
+            "\nThe demo then filled the workbook with invented values, added a re-typed CSV with two "
+            "planted mistakes, and checked both:"
+        )
         print_check_summary(result.check, [])
     if not result.pdf:
         out.print("No PDF engine was found, so no PDFs were made: pip install 'layout[pdf]' or install Chromium.")

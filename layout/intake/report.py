@@ -23,6 +23,10 @@ STATUS_COLOURS: Final = {
 REPORT_FILES: Final = ("report.json", "report.html", "tidy.csv")
 
 
+def _severity_rank(f: Any) -> int:
+    return ["error", "warning", "info"].index(f.severity.value)
+
+
 def report_json(result: CheckResult) -> str:
     """The machine-readable report."""
     data = {

@@ -12,17 +12,10 @@ import tempfile
 from pathlib import Path
 
 from layout.demo import run_demo
+from layout.outputs.pdf import CHROMIUM_FLAGS
 
 HERE = Path(__file__).parent / "previews"
-FLAGS = [
-    "--headless",
-    "--disable-gpu",
-    "--no-first-run",
-    "--disable-background-networking",
-    "--disable-component-update",
-    "--disable-sync",
-    "--hide-scrollbars",
-]
+FLAGS = [*CHROMIUM_FLAGS, "--hide-scrollbars"]
 
 
 def main() -> int:

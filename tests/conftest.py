@@ -88,3 +88,26 @@ def pdftoppm() -> str:
 @pytest.fixture(scope="session")
 def soffice() -> str:
     return need("soffice")
+
+
+def libreoffice_convert(soffice: str, source: Path, fmt: str, out: Path) -> Path:
+    """source converted by headless LibreOffice Calc into out (a fresh profile beside it); the new file's path."""
+    import subprocess
+
+    profile = out.parent / f"{out.name}-profile"
+    subprocess.run(
+        [
+            soffice,
+            f"-env:UserInstallation={profile.as_uri()}",
+            "--headless",
+            "--convert-to",
+            fmt,
+            "--outdir",
+            str(out),
+            str(source),
+        ],
+        check=True,
+        capture_output=True,
+        timeout=180,
+    )
+    return out / f"{source.stem}.{fmt}"

@@ -5,7 +5,6 @@ from __future__ import annotations
 import csv
 import hashlib
 import shutil
-import subprocess
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
@@ -20,6 +19,7 @@ from layout.intake.check import CheckResult, check_returns
 from layout.intake.findings import Kind, Severity
 from layout.outputs.workbook import workbook_bytes
 from layout.simulate import fill_workbook, simulate
+from tests.conftest import libreoffice_convert
 
 SPEC = """
 [study]
@@ -461,23 +461,8 @@ class TestEveryFinding:
         values = simulate(plan)
         code = first_good(plan, values)
         path = edited(filled, tmp_path / "f.xlsx", _set(lambda p, v: code, "moisture (%)", "=10+2.5")(plan, values))
-        out = tmp_path / "lo"
-        subprocess.run(
-            [
-                soffice,
-                f"-env:UserInstallation={(tmp_path / 'profile').as_uri()}",
-                "--headless",
-                "--convert-to",
-                "xlsx",
-                "--outdir",
-                str(out),
-                str(path),
-            ],
-            check=True,
-            capture_output=True,
-            timeout=180,
-        )
-        result = check_returns(plan, [out / "f.xlsx"])
+        resaved = libreoffice_convert(soffice, path, "xlsx", tmp_path / "lo")
+        result = check_returns(plan, [resaved])
         assert ("formula-cell", code) in kinds(result)
         assert errors(result) == set()
         tidy = result.tidy.set_index(["code", "round"])
@@ -506,21 +491,7 @@ class TestLibreOffice:
         """A filled workbook re-saved by LibreOffice Calc (xlsx) and exported by it (csv) both check clean."""
         out = tmp_path / "lo"
         for fmt in ("xlsx", "csv"):
-            subprocess.run(
-                [
-                    soffice,
-                    f"-env:UserInstallation={(tmp_path / 'profile').as_uri()}",
-                    "--headless",
-                    "--convert-to",
-                    fmt,
-                    "--outdir",
-                    str(out),
-                    str(filled),
-                ],
-                check=True,
-                capture_output=True,
-                timeout=180,
-            )
+            libreoffice_convert(soffice, filled, fmt, out)
         want = check_returns(plan, [filled]).tidy
         cols = [r.name for r in plan.spec.response] + ["missing_reason"]
         for name in ("filled.xlsx", "filled.csv"):

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import csv
-import subprocess
 from pathlib import Path
 
 import openpyxl
@@ -13,6 +12,7 @@ from python_calamine import CalamineWorkbook
 from layout import Plan
 from layout.outputs.entry_table import entry_rows, headers
 from layout.outputs.workbook import HIDDEN_SHEET, workbook_bytes
+from tests.conftest import libreoffice_convert
 
 
 @pytest.fixture()
@@ -119,24 +119,8 @@ class TestProtectionAndValidation:
 class TestLibreOffice:
     def test_calc_opens_and_exports_same_rows(self, entry: Path, rcbd_plan: Plan, soffice: str, tmp_path: Path) -> None:
         """LibreOffice Calc (headless --convert-to csv) opens entry.xlsx and exports the planned rows."""
-        out = tmp_path / "lo"
-        profile = tmp_path / "profile"
-        subprocess.run(
-            [
-                soffice,
-                f"-env:UserInstallation={profile.as_uri()}",
-                "--headless",
-                "--convert-to",
-                "csv",
-                "--outdir",
-                str(out),
-                str(entry),
-            ],
-            check=True,
-            capture_output=True,
-            timeout=180,
-        )
-        with (out / "entry.csv").open(newline="", encoding="utf-8") as fh:
+        exported = libreoffice_convert(soffice, entry, "csv", tmp_path / "lo")
+        with exported.open(newline="", encoding="utf-8") as fh:
             rows = list(csv.reader(fh))
         assert rows[0] == headers(rcbd_plan)
         assert [r[0] for r in rows[1:]] == [p.code for p in entry_rows(rcbd_plan)]

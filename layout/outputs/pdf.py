@@ -12,7 +12,7 @@ from typing import Final
 from layout.errors import UsageError
 
 BROWSERS: Final = ("chromium", "chromium-browser", "google-chrome", "google-chrome-stable", "chrome", "microsoft-edge")
-_CHROMIUM_FLAGS: Final = (
+CHROMIUM_FLAGS: Final = (
     "--headless",
     "--disable-gpu",
     "--no-first-run",
@@ -70,7 +70,13 @@ def html_to_pdf(html: Path, engine: str) -> bytes:
         return weasyprint.HTML(filename=str(html)).write_pdf()
     with tempfile.TemporaryDirectory(prefix="layout-pdf-") as tmp:
         target = Path(tmp) / "out.pdf"
-        cmd = [engine, *_CHROMIUM_FLAGS, f"--user-data-dir={tmp}/profile", f"--print-to-pdf={target}"]
+        cmd = [
+            engine,
+            *CHROMIUM_FLAGS,
+            "--no-pdf-header-footer",
+            f"--user-data-dir={tmp}/profile",
+            f"--print-to-pdf={target}",
+        ]
         if hasattr(os, "geteuid") and os.geteuid() == 0:
             cmd.insert(1, "--no-sandbox")  # the browser refuses to start as root otherwise
         cmd.append(html.resolve().as_uri())

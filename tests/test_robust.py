@@ -98,3 +98,40 @@ class TestOutlierSubsample:
         """With two subsamples a unit cannot say which value is off, so nothing is flagged."""
         values = {f"u{i}": [(f"u{i}/0", 0.0), (f"u{i}/1", 100.0 if i == 0 else 0.5)] for i in range(10)}
         assert find_outliers(values) == []
+
+
+class TestDeletionFormula:
+    def test_leave_two_out_equals_a_refit(self) -> None:
+        """Coefficients and residual variance without a pair equal a plain numpy lstsq refit without it."""
+        from layout.intake.robust import _design_matrix, _Fit
+
+        rng = np.random.default_rng(3)
+        rcbd = SPEC.replace('type = "crd"\nreplicates = 8', 'type = "rcbd"\nblocks = 6')
+        plan = make_plan(loads_spec(rcbd, "s.toml"), 1)
+        units = list(plan.units)
+        y = np.array([4.0 * "abcd".index(u.treatment) + 0.5 * (u.block or 0) + rng.normal() for u in units])
+        x, _ = _design_matrix(plan, units, list(plan.spec.treatments))
+        fit = _Fit(x, y)
+        for i in range(0, len(units), 3):
+            for j in range(i + 1, len(units), 2):
+                keep = np.ones(len(y), bool)
+                keep[[i, j]] = False
+                beta, *_ = np.linalg.lstsq(x[keep], y[keep], rcond=None)
+                s2 = float(np.sum((y[keep] - x[keep] @ beta) ** 2)) / (keep.sum() - np.linalg.matrix_rank(x[keep]))
+                got = fit.without(i, j)
+                assert got is not None
+                np.testing.assert_allclose(got[0], beta, rtol=1e-9, atol=1e-9)
+                assert got[1] == pytest.approx(s2, rel=1e-9)
+
+    def test_not_estimable_without_the_pair(self) -> None:
+        """When a treatment has no unit left without the pair, the pair is not scored."""
+        from layout.intake.robust import _design_matrix, _Fit
+
+        crd = SPEC.replace("replicates = 8", "replicates = { a = 1, b = 3, c = 3, d = 3 }")
+        plan = make_plan(loads_spec(crd, "s.toml"), 1)
+        units = list(plan.units)
+        x, _ = _design_matrix(plan, units, list(plan.spec.treatments))
+        fit = _Fit(x, np.arange(len(units), dtype=float) ** 1.5)
+        lone = next(k for k, u in enumerate(units) if u.treatment == "a")
+        other = next(k for k, u in enumerate(units) if u.treatment == "b")
+        assert fit.without(lone, other) is None

@@ -111,14 +111,10 @@ def find_swaps(plan: Plan, means: dict[str, float], threshold: float = SWAP_THRE
         return []
     y = np.array([means[u.code] for u in units])
     x, first = _design_matrix(plan, units, treatments)
-    rank = np.linalg.matrix_rank(x)
-    if len(units) - rank < 3:
+    fit = _Fit(x, y)
+    if len(units) - fit.rank < 3 or not np.any(np.abs(fit.resid) > 1e-12):
         return []
-    beta, *_ = np.linalg.lstsq(x, y, rcond=None)
-    resid = y - x @ beta
-    if not np.any(np.abs(resid) > 1e-12):
-        return []
-    order = np.argsort(-np.abs(resid))
+    order = np.argsort(-np.abs(fit.resid))
     candidates = [int(i) for i in order[:_MAX_CANDIDATES]]
     t_col = {t: (first + k - 1 if k else None) for k, t in enumerate(treatments)}
     scored: list[tuple[float, int, int]] = []
@@ -126,9 +122,9 @@ def find_swaps(plan: Plan, means: dict[str, float], threshold: float = SWAP_THRE
         for j in candidates[a_pos + 1 :]:
             if units[i].treatment == units[j].treatment:
                 continue
-            score = _pair_score(x, y, i, j, t_col[units[i].treatment], t_col[units[j].treatment])
+            score = fit.pair_score(i, j, t_col[units[i].treatment], t_col[units[j].treatment])
             if score is not None and score > threshold:
-                scored.append((score, int(i), int(j)))
+                scored.append((score, i, j))
     used: set[int] = set()
     found = []
     for score, i, j in sorted(scored, reverse=True):
@@ -139,32 +135,58 @@ def find_swaps(plan: Plan, means: dict[str, float], threshold: float = SWAP_THRE
     return found
 
 
-def _pair_score(x: np.ndarray, y: np.ndarray, i: int, j: int, ti: int | None, tj: int | None) -> float | None:
-    keep = np.ones(len(y), dtype=bool)
-    keep[[i, j]] = False
-    xk, yk = x[keep], y[keep]
-    rank = np.linalg.matrix_rank(xk)
-    df = len(yk) - rank
-    if rank < x.shape[1] or df < 2:
-        return None  # without the pair some effect cannot be estimated
-    beta, *_ = np.linalg.lstsq(xk, yk, rcond=None)
-    s2 = float(np.sum((yk - xk @ beta) ** 2)) / df
-    if s2 <= 0:
-        return None
+class _Fit:
+    """A least-squares fit of unit means, with the leave-two-out refit by the deletion formulas.
 
-    def predict(row: int, own: int | None, other: int | None) -> float:
-        v = x[row].copy()
-        if own is not None:
-            v[own] = 0.0
-        if other is not None:
-            v[other] = 1.0
-        return float(v @ beta)
+    Without the units S = {i, j}: β₋ = β − (XᵀX)⁻X_Sᵀ(I − H_SS)⁻¹e_S and
+    RSS₋ = RSS − e_Sᵀ(I − H_SS)⁻¹e_S, where H_SS is the 2 × 2 block of the hat matrix and e
+    the full fit's residuals; this equals refitting without the pair, at a fraction of the cost.
+    """
 
-    fit_i, fit_j = float(x[i] @ beta), float(x[j] @ beta)
-    swap_i, swap_j = predict(i, ti, tj), predict(j, tj, ti)
-    if abs(swap_i - fit_i) < MIN_SEPARATION * np.sqrt(s2):
-        return None  # treatments this close cannot be told apart, and a swap between them changes little
-    if abs(y[i] - swap_i) >= abs(y[i] - fit_i) or abs(y[j] - swap_j) >= abs(y[j] - fit_j):
-        return None  # a swap must make both units fit better, not one very much better
-    drop = (y[i] - fit_i) ** 2 + (y[j] - fit_j) ** 2 - (y[i] - swap_i) ** 2 - (y[j] - swap_j) ** 2
-    return float(drop / s2)
+    def __init__(self, x: np.ndarray, y: np.ndarray) -> None:
+        self.x, self.y = x, y
+        self.inv = np.linalg.pinv(x.T @ x)
+        self.rank = int(np.linalg.matrix_rank(x))
+        self.beta = self.inv @ (x.T @ y)
+        self.resid = y - x @ self.beta
+        self.rss = float(self.resid @ self.resid)
+
+    def without(self, i: int, j: int) -> tuple[np.ndarray, float] | None:
+        """Coefficients and residual variance of the fit without units i and j, or None when not estimable."""
+        xs = self.x[[i, j]]
+        m = np.eye(2) - xs @ self.inv @ xs.T
+        if abs(np.linalg.det(m)) < 1e-9:
+            return None  # without the pair some effect cannot be estimated
+        m_inv = np.linalg.inv(m)
+        es = self.resid[[i, j]]
+        beta = self.beta - self.inv @ xs.T @ (m_inv @ es)
+        df = len(self.y) - 2 - self.rank
+        s2 = (self.rss - float(es @ m_inv @ es)) / df if df >= 2 else 0.0
+        if s2 <= 1e-12 * max(1.0, float(np.var(self.y))):
+            return None
+        return beta, s2
+
+    def pair_score(self, i: int, j: int, ti: int | None, tj: int | None) -> float | None:
+        """The drop in squared residuals, over s², when units i and j exchange treatments."""
+        refit = self.without(i, j)
+        if refit is None:
+            return None
+        beta, s2 = refit
+        y, x = self.y, self.x
+
+        def predict(row: int, own: int | None, other: int | None) -> float:
+            v = x[row].copy()
+            if own is not None:
+                v[own] = 0.0
+            if other is not None:
+                v[other] = 1.0
+            return float(v @ beta)
+
+        fit_i, fit_j = float(x[i] @ beta), float(x[j] @ beta)
+        swap_i, swap_j = predict(i, ti, tj), predict(j, tj, ti)
+        if abs(swap_i - fit_i) < MIN_SEPARATION * np.sqrt(s2):
+            return None  # treatments this close cannot be told apart, and a swap between them changes little
+        if abs(y[i] - swap_i) >= abs(y[i] - fit_i) or abs(y[j] - swap_j) >= abs(y[j] - fit_j):
+            return None  # a swap must make both units fit better, not one very much better
+        drop = (y[i] - fit_i) ** 2 + (y[j] - fit_j) ** 2 - (y[i] - swap_i) ** 2 - (y[j] - swap_j) ** 2
+        return float(drop / s2)

@@ -7,7 +7,7 @@ from typing import Any
 
 from layout.codes import compact, index_codes, is_valid, suggest
 from layout.intake.columns import Columns
-from layout.intake.findings import Finding, Kind, finding, show_value
+from layout.intake.findings import Finding, Kind, Severity, finding, show_value
 from layout.intake.readers import ReturnedTable
 from layout.intake.values import is_blank, parse
 from layout.plan import Plan, Slot
@@ -136,7 +136,7 @@ def check_rows(
         slot = idx.slot_by_code[slot_code]
         unit = plan.unit_by_code[slot.unit]
         where = {**at, "code": slot.code, "unit": unit.code}
-        errors_before = len([f for f in found if f.severity.value == "error"])
+        first_finding = len(found)
         planned = {
             "unit": unit.code,
             "block": unit.block,
@@ -252,7 +252,7 @@ def check_rows(
                     **where,
                 )
             )
-        entry.errors = len([f for f in found if f.severity.value == "error"]) - errors_before
+        entry.errors = sum(f.severity is Severity.ERROR for f in found[first_finding:])
         entries.append(entry)
     return entries, unmatched, found
 

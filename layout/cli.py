@@ -178,7 +178,8 @@ def _check(args: argparse.Namespace) -> int:
     for path in args.returned:
         if not Path(path).exists():
             raise UsageError(f"{path}: no such file; name the returned .xlsx and .csv files to check")
-    result = check_returns(plan, args.returned)
+    with err.status("checking") as status:
+        result = check_returns(plan, args.returned, progress=lambda step: status.update(step))
     folder = Path(args.output) if args.output else Path(args.plan).parent / "checked"
     written = write_report(plan, result, folder, force=args.force, unblind=args.unblind)
     print_check_summary(result, written)

@@ -488,13 +488,13 @@ class TestSeveralFiles:
 
 class TestLibreOffice:
     def test_resaved_and_exported_check_clean(self, plan: Plan, filled: Path, soffice: str, tmp_path: Path) -> None:
-        """A filled workbook re-saved by LibreOffice Calc (xlsx) and exported by it (csv) both check clean."""
+        """A filled workbook re-saved by LibreOffice Calc (xlsx, ods) and exported by it (csv) all check clean."""
         out = tmp_path / "lo"
-        for fmt in ("xlsx", "csv"):
+        for fmt in ("xlsx", "csv", "ods"):
             libreoffice_convert(soffice, filled, fmt, out)
         want = check_returns(plan, [filled]).tidy
         cols = [r.name for r in plan.spec.response] + ["missing_reason"]
-        for name in ("filled.xlsx", "filled.csv"):
+        for name in ("filled.xlsx", "filled.csv", "filled.ods"):
             result = check_returns(plan, [out / name])
             assert errors(result) == set(), name
             pd.testing.assert_frame_equal(result.tidy[cols], want[cols], obj=name)

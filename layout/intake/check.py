@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from collections import Counter
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -41,8 +41,14 @@ class CheckResult:
         return sum(f.severity is Severity.ERROR for f in self.findings)
 
 
-def check_returns(plan: Plan, paths: Sequence[str | Path]) -> CheckResult:
-    """Check returned .xlsx/.csv files against the plan; returns findings and the tidy table."""
+def check_returns(
+    plan: Plan, paths: Sequence[str | Path], progress: Callable[[str], None] | None = None
+) -> CheckResult:
+    """Check returned .xlsx/.csv files against the plan; returns findings and the tidy table.
+
+    progress, when given, is called with a short description before each step.
+    """
+    say = progress or (lambda _: None)
     idx = PlanIndex(plan)
     found: list[Finding] = []
     entries: list[Entry] = []
@@ -50,6 +56,7 @@ def check_returns(plan: Plan, paths: Sequence[str | Path]) -> CheckResult:
     files: list[dict[str, Any]] = []
     for path in paths:
         name = str(path)
+        say(f"reading {name}")
         try:
             table = read_returned(path)
         except (UnreadableFile, OSError) as exc:
@@ -96,9 +103,11 @@ def check_returns(plan: Plan, paths: Sequence[str | Path]) -> CheckResult:
                 "fingerprint": table.fingerprint,
             }
         )
+    say("merging and looking for missing slots")
     kept, conflicts, merge_findings = merge_entries(plan, entries)
     found += merge_findings
     found += missing_slots(plan, kept)
+    say("looking for outlying subsamples and swapped units")
     stats, outliers, swaps = _statistical(plan, kept, conflicts)
     found += stats
     tidy = tidy_table(plan, kept, conflicts, unmatched)

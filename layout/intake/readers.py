@@ -49,9 +49,11 @@ def read_returned(path: str | Path) -> ReturnedTable:
     suffix = p.suffix.lower()
     if suffix in (".xlsx", ".xlsm"):
         return _read_xlsx(p)
+    if suffix in (".ods", ".xls", ".xlsb"):
+        return _read_book(p, formulas=False)
     if suffix in (".csv", ".txt", ".tsv"):
         return _read_csv(p)
-    raise UnreadableFile(f"not a workbook or CSV file (ending {suffix or 'none'}); return .xlsx or .csv files")
+    raise UnreadableFile(f"not a workbook or CSV file (ending {suffix or 'none'}); return .xlsx, .ods or .csv files")
 
 
 def _header_at(rows: list[list[Any]]) -> int:
@@ -82,6 +84,11 @@ def _read_xlsx(p: Path) -> ReturnedTable:
             )
     except zipfile.BadZipFile:
         raise UnreadableFile("not a valid .xlsx workbook (the file is damaged or of another format)") from None
+    return _read_book(p, formulas=sheets_with_formulas)
+
+
+def _read_book(p: Path, formulas: bool) -> ReturnedTable:
+    """Any workbook python-calamine reads (.xlsx, .ods, .xls); formulas are located only in .xlsx."""
     try:
         book = CalamineWorkbook.from_path(str(p))
         names = book.sheet_names
@@ -99,7 +106,7 @@ def _read_xlsx(p: Path) -> ReturnedTable:
     except Exception as exc:  # calamine raises its own error types for damaged files
         raise UnreadableFile(f"cannot be read as a workbook ({type(exc).__name__}: {exc})") from None
     table = _table(str(p), [list(r) for r in rows], fingerprint=fingerprint, sheet=name)
-    if sheets_with_formulas:
+    if formulas:
         try:
             table.formulas = _formula_cells(p, name)
         except Exception:  # the values were read; only the formula warning is lost

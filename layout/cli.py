@@ -91,8 +91,7 @@ def _plan(args: argparse.Namespace) -> int:
 
 
 def _label_geometry(args: argparse.Namespace) -> LabelGeometry:
-    base = LabelGeometry()
-    values = dict(base.__dict__)
+    values = dict(LabelGeometry.for_paper(args.paper).__dict__)
     if args.label_printer:
         values["single"] = True
         values["width"], values["height"] = 50.0, 25.0

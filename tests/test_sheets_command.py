@@ -97,3 +97,15 @@ class TestBadOptions:
         plan_file.write_text(plan_file.read_text().replace('"treatment": "0"', '"treatment": "8"', 1))
         assert main(["sheets", str(plan_file), "-o", str(plan_file.parent / "x")]) == 2
         assert "fingerprint does not match" in capsys.readouterr().err
+
+
+class TestLetterPaper:
+    def test_letter_paper_gets_a_label_sheet_that_fits(self, plan_file: Path, tmp_path: Path) -> None:
+        """--paper letter without label options uses a label sheet that fits letter paper."""
+        from layout.outputs.labels import PAPER_MM, LabelGeometry
+
+        out = tmp_path / "letter"
+        assert main(["sheets", str(plan_file), "-o", str(out), "--paper", "letter", "--only", "labels,sheets"]) == 0
+        g = LabelGeometry.for_paper("letter").check()
+        assert g.top + g.rows * g.height <= PAPER_MM["letter"][1]
+        assert "215.9mm 279.4mm" in (out / "labels.html").read_text()

@@ -5,7 +5,7 @@ from __future__ import annotations
 import tempfile
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Final
 
@@ -92,6 +92,8 @@ def write_sheets(plan: Plan, out_dir: str | Path, options: SheetOptions | None =
         raise UsageError(f"--only: {unknown[0]!r} is not one of {', '.join(PRODUCTS)}")
     if options.paper not in ("a4", "letter"):
         raise UsageError(f"--paper: must be a4 or letter, got {options.paper!r}")
+    if options.labels == LabelGeometry() and options.paper != "a4":
+        options = replace(options, labels=LabelGeometry.for_paper(options.paper))
     options.labels.check()
     folder = Path(out_dir)
     names = planned_files(plan, options)

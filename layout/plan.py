@@ -197,6 +197,8 @@ def load_plan(path: str | Path) -> Plan:
         text = p.read_text(encoding="utf-8")
     except FileNotFoundError:
         raise PlanError(f"{p}: no such file") from None
+    except IsADirectoryError:
+        raise PlanError(f"{p}: is a folder; name the plan.json file that 'layout plan' wrote") from None
     except (OSError, UnicodeDecodeError) as exc:
         raise PlanError(f"{p}: cannot be read: {exc}") from None
     return parse_plan(text, str(p))

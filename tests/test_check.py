@@ -499,3 +499,27 @@ class TestLibreOffice:
             assert errors(result) == set(), name
             pd.testing.assert_frame_equal(result.tidy[cols], want[cols], obj=name)
         shutil.rmtree(out)
+
+
+class TestNothingLost:
+    def test_cells_beyond_the_header_become_added_columns(self, plan: Plan, filled: Path, tmp_path: Path) -> None:
+        """A value typed to the right of the last headed column is carried into tidy.csv, with a warning."""
+        values = simulate(plan)
+        code = first_good(plan, values)
+
+        def edit(ws: Any, col: dict[str, int]) -> None:
+            ws.cell(row_of(ws, col, code), ws.max_column + 2).value = "pot cracked"
+
+        result = check_returns(plan, [edited(filled, tmp_path / "wide.xlsx", edit)])
+        assert errors(result) == set()
+        assert any(f.kind is Kind.EXTRA_COLUMN for f in result.findings)
+        tidy = result.tidy.set_index(["code", "round"])
+        extra = [c for c in tidy.columns if c.startswith("column ")]
+        assert [tidy.loc[(code, "r1"), c] for c in extra] == ["pot cracked"]
+
+    def test_unplaced_rows_keep_their_cells(self, plan: Plan, filled: Path, tmp_path: Path) -> None:
+        """A row whose code matches nothing stays in tidy.csv as unmatched, with every cell it had."""
+        path = edited(filled, tmp_path / "x.xlsx", _append_copy(_typo)(plan, simulate(plan)))
+        tidy = check_returns(plan, [path]).tidy
+        unmatched = tidy[tidy["status"] == "unmatched"]
+        assert len(unmatched) == 1 and "moisture (%)=" in unmatched["note"].iloc[0]

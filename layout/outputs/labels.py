@@ -35,7 +35,9 @@ class LabelGeometry:
     def for_paper(cls, paper: str) -> LabelGeometry:
         """The default label sheet for a paper size: 3 × 8 labels on A4 or on letter."""
         if paper == "letter":
-            return cls(cols=3, rows=8, width=64.0, height=31.0, top=15.0, left=8.0, col_gap=3.0, row_gap=0.0, paper="letter")
+            return cls(
+                cols=3, rows=8, width=64.0, height=31.0, top=15.0, left=8.0, col_gap=3.0, row_gap=0.0, paper="letter"
+            )
         return cls()
 
     @property

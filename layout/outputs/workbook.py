@@ -67,7 +67,9 @@ def _validation(r: Response, cells: str) -> DataValidation:
         elif hi is not None:
             dv = DataValidation(type=kind, operator="lessThanOrEqual", formula1=f"{hi:g}", **kw)
         else:
-            dv = DataValidation(type=kind, operator="between", formula1="-1E+307", formula2="1E+307", **kw)
+            # no range given: any value of the kind (whole numbers are 32-bit in spreadsheet validation)
+            lo_any, hi_any = ("-2147483648", "2147483647") if kind == "whole" else ("-1E+307", "1E+307")
+            dv = DataValidation(type=kind, operator="between", formula1=lo_any, formula2=hi_any, **kw)
     elif r.kind == "category":
         dv = DataValidation(type="list", formula1=_list_formula(r.levels or ()), **kw)
     elif r.kind == "date":

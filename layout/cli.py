@@ -14,7 +14,7 @@ from rich.table import Table
 from layout import __version__
 from layout.demo import run_demo
 from layout.errors import LayoutError, UsageError
-from layout.intake.check import check_returns
+from layout.intake.check import CheckResult, check_returns
 from layout.intake.findings import Severity
 from layout.intake.report import write_report
 from layout.outputs import PRODUCTS, SheetOptions, write_sheets
@@ -139,7 +139,7 @@ def _sheets(args: argparse.Namespace) -> int:
     return 0
 
 
-def print_check_summary(result, written: list[Path]) -> None:  # type: ignore[no-untyped-def]
+def print_check_summary(result: CheckResult, written: list[Path]) -> None:
     """Counts by kind and the first findings."""
     s = result.summary
     out.print(

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from collections import Counter
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -31,7 +31,7 @@ class CheckResult:
     outliers: set[tuple[str, str, str]] = field(default_factory=set)  # (slot, round, response)
     swaps: set[tuple[str, str]] = field(default_factory=set)  # (unit, round)
 
-    def __iter__(self):  # type: ignore[no-untyped-def]
+    def __iter__(self) -> Iterator[Any]:
         """So that ``findings, tidy = check_returns(plan, paths)`` works."""
         return iter((self.findings, self.tidy))
 

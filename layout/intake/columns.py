@@ -8,7 +8,6 @@ from layout.intake.findings import Finding, Kind, Severity, finding
 from layout.intake.readers import ReturnedTable
 from layout.intake.values import is_blank
 from layout.plan import Plan
-from layout.spec import Response
 
 STRUCTURE = ("code", "unit", "block", "row", "col", "subsample", "round", "treatment")
 _ALIASES = {"missing reason": "missing_reason", "reason": "missing_reason", "notes": "note", "column": "col"}
@@ -28,33 +27,36 @@ class Columns:
     reason: int | None = None
     note: int | None = None
     extras: dict[str, int] = field(default_factory=dict)
-    absent_responses: set[str] = field(default_factory=set)
+
+
+def _roles(plan: Plan) -> dict[str, tuple[str, str]]:
+    """Normalised header → (role, name): structure columns, responses (header or bare name), reason, note."""
+    blind = plan.spec.study.blind
+    roles = {s: ("structure", s) for s in STRUCTURE if not (blind and s == "treatment")}
+    for r in plan.spec.response:
+        roles[normal(r.header)] = ("response", r.name)
+        roles.setdefault(normal(r.name), ("response", r.name))
+    roles["missing_reason"] = ("reason", "missing_reason")
+    roles["note"] = ("note", "note")
+    return roles
 
 
 def map_columns(table: ReturnedTable, plan: Plan) -> tuple[Columns, list[Finding]]:
     """The roles of the file's columns, and findings for missing and added ones."""
-    blind = plan.spec.study.blind
-    structure = [s for s in STRUCTURE if not (blind and s == "treatment")]
-    by_header: dict[str, tuple[str, object]] = {s: ("structure", s) for s in structure}
-    for r in plan.spec.response:
-        by_header[normal(r.header)] = ("response", r)
-        by_header.setdefault(normal(r.name), ("response", r))
-    by_header["missing_reason"] = ("reason", None)
-    by_header["note"] = ("note", None)
+    roles = _roles(plan)
     cols = Columns()
     found: list[Finding] = []
-    taken: set[str] = set()
+    at = {"file": table.file, "row": table.header_row}
+    taken: set[tuple[str, str]] = set()
     for i, header in enumerate(table.headers):
-        key = _ALIASES.get(normal(header), normal(header))
-        role = by_header.get(key)
-        label = f"{role[0]}:{role[1].name if isinstance(role[1], Response) else role[1]}" if role else None
-        if role and label not in taken:
-            taken.add(label)
-            kind, what = role
+        role = roles.get(_ALIASES.get(normal(header), normal(header)))
+        if role and role not in taken:  # a second column of the same name counts as added
+            taken.add(role)
+            kind, name = role
             if kind == "structure":
-                cols.structure[str(what)] = i
+                cols.structure[name] = i
             elif kind == "response":
-                cols.responses[what.name] = i  # type: ignore[union-attr]
+                cols.responses[name] = i
             elif kind == "reason":
                 cols.reason = i
             else:
@@ -68,51 +70,43 @@ def map_columns(table: ReturnedTable, plan: Plan) -> tuple[Columns, list[Finding
             finding(
                 Kind.EXTRA_COLUMN,
                 f"column {name!r} is not in the plan; its values are carried into tidy.csv",
-                file=table.file,
-                row=table.header_row,
                 column=name,
+                **at,
             )
         )
-    gone = [s for s in structure if s not in cols.structure]
-    for s in [g for g in gone if g == "code" or (g == "round" and len(plan.rounds) > 1)]:
-        why = (
-            "rows cannot be matched to the plan without it"
-            if s == "code"
-            else "this plan has several rounds, so rows cannot be placed without it"
-        )
-        found.append(
-            finding(
-                Kind.MISSING_COLUMN,
-                f"the column {s!r} is missing; {why}",
-                file=table.file,
-                row=table.header_row,
-                column=s,
-            )
-        )
-    minor = [g for g in gone if g not in ("code", "round") or len(plan.rounds) == 1 and g == "round"]
+    found += _missing(plan, cols, roles, at)
+    return cols, found
+
+
+def _missing(plan: Plan, cols: Columns, roles: dict[str, tuple[str, str]], at: dict[str, object]) -> list[Finding]:
+    found: list[Finding] = []
+    gone = [name for kind, name in roles.values() if kind == "structure" and name not in cols.structure]
+    needed = {"code": "rows cannot be matched to the plan without it"}
+    if len(plan.rounds) > 1:
+        needed["round"] = "this plan has several rounds, so rows cannot be placed without it"
+    for name in [g for g in gone if g in needed]:
+        found.append(finding(Kind.MISSING_COLUMN, f"the column {name!r} is missing; {needed[name]}", column=name, **at))
+    minor = [g for g in gone if g not in needed]
     if minor:
-        names = ", ".join(repr(g) for g in minor)
+        many = len(minor) > 1
         found.append(
             finding(
                 Kind.MISSING_COLUMN,
-                f"the column{'s' if len(minor) > 1 else ''} {names} "
-                f"{'are' if len(minor) > 1 else 'is'} missing; only compared with the plan, so the rows are still checked by code",
+                f"the column{'s' if many else ''} {', '.join(repr(g) for g in minor)} {'are' if many else 'is'} missing; "
+                "only compared with the plan, so the rows are still checked by code",
                 Severity.WARNING,
-                file=table.file,
-                row=table.header_row,
                 column=minor[0],
+                **at,
             )
         )
     for r in plan.spec.response:
         if r.name not in cols.responses:
-            cols.absent_responses.add(r.name)
             found.append(
                 finding(
                     Kind.MISSING_COLUMN,
                     f"the response column {r.header!r} is missing; its values are not in this file",
-                    file=table.file,
-                    row=table.header_row,
                     column=r.header,
+                    **at,
                 )
             )
-    return cols, found
+    return found

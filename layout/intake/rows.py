@@ -34,11 +34,10 @@ class Unmatched:
     """A row that could not be placed in the plan; kept so no entered value is lost."""
 
     code: str
-    round: str | None
     cells: dict[str, str]
     file: str
     row: int
-    reason: str
+    why: str
 
 
 class PlanIndex:
@@ -57,17 +56,20 @@ def _text(cell: Any) -> str:
     return "" if is_blank(cell) else show_value(cell).strip()
 
 
-def _same(cell: Any, planned: Any) -> bool:
+def _same(column: str, cell: Any, planned: Any) -> bool:
+    """Whether a structure cell agrees with the plan; a cleared cell is harmless (the code says where the row belongs)."""
     if is_blank(cell):
-        return True  # a cleared structure cell is harmless: the code says where the row belongs
+        return True
     if planned is None:
         return False
+    if column == "unit":
+        return compact(str(cell)) == compact(str(planned))
     if isinstance(planned, int):
         try:
             return float(str(cell).strip().replace(",", ".")) == planned
         except ValueError:
             return False
-    return compact(str(cell)) == compact(str(planned)) if "-" in str(planned) else str(cell).strip() == str(planned)
+    return str(cell).strip().casefold() == str(planned).casefold()
 
 
 def _round_of(cells: list[Any], cols: Columns, idx: PlanIndex) -> str | None:
@@ -83,178 +85,186 @@ def check_rows(
     entries: list[Entry] = []
     unmatched: list[Unmatched] = []
     found: list[Finding] = []
-    plan = idx.plan
-    responses = {r.name: r for r in plan.spec.response}
-    reasons = {m.lower(): m for m in plan.spec.collection.missing_reasons}
     width = len(table.headers)
     for number, raw_cells in table.rows:
         cells = list(raw_cells) + [None] * (width - len(raw_cells))
         if all(is_blank(c) for c in cells):
             continue
-        shown = {
-            h or f"column {i + 1}": _text(c)
-            for i, (h, c) in enumerate(zip(table.headers, cells, strict=False))
-            if not is_blank(c)
-        }
-        code_text = _text(cells[cols.structure["code"]])
-        at = {"file": table.file, "row": number}
-        if not code_text:
-            hint = _code_from_place(cells, cols, idx)
-            found.append(
-                finding(Kind.BLANK_CODE, "the row has values but no code", column="code", suggestion=hint, **at)
-            )
-            unmatched.append(Unmatched("", None, shown, table.file, number, "blank-code"))
+        first = len(found)
+        placed = _place(cells, cols, idx, {"file": table.file, "row": number}, found)
+        if isinstance(placed, str):
+            shown = {
+                h or f"column {i + 1}": _text(c)
+                for i, (h, c) in enumerate(zip(table.headers, cells, strict=True))
+                if not is_blank(c)
+            }
+            unmatched.append(Unmatched(_text(cells[cols.structure["code"]]), shown, table.file, number, placed))
             continue
-        slot_code = idx.slots.get(compact(code_text))
-        if slot_code is None:
-            if is_valid(code_text):
-                what = (
-                    "is a unit code; each row needs its subsample slot's code"
-                    if compact(code_text) in idx.units
-                    else "passes its check but is not a slot of this plan (another study's sheet?)"
-                )
-                found.append(
-                    finding(
-                        Kind.UNKNOWN_CODE,
-                        f"code {code_text!r} {what}",
-                        column="code",
-                        value=code_text,
-                        code=code_text,
-                        **at,
-                    )
-                )
-            else:
-                near = suggest(code_text, idx.slots)
-                hint = " or ".join(near) if near else None
-                msg = f"code {code_text!r} fails its check character (a typing or reading error)"
-                msg += f"; did you mean {hint}?" if hint else "; no planned code is one edit away"
-                found.append(
-                    finding(Kind.BAD_CODE, msg, column="code", value=code_text, code=code_text, suggestion=hint, **at)
-                )
-            unmatched.append(Unmatched(code_text, None, shown, table.file, number, "code"))
-            continue
-        slot = idx.slot_by_code[slot_code]
-        unit = plan.unit_by_code[slot.unit]
-        where = {**at, "code": slot.code, "unit": unit.code}
-        first_finding = len(found)
-        planned = {
-            "unit": unit.code,
-            "block": unit.block,
-            "row": unit.row,
-            "col": unit.col,
-            "subsample": slot.subsample,
-            "treatment": unit.treatment,
-        }
-        for name, i in cols.structure.items():
-            if name in planned and not _same(cells[i], planned[name]):
-                found.append(
-                    finding(
-                        Kind.UNIT_MISMATCH,
-                        f"{name} is {_text(cells[i])!r} but the plan has {show_value(planned[name]) if planned[name] is not None else 'none'} for {slot.code}",
-                        column=name,
-                        value=_text(cells[i]),
-                        **where,
-                    )
-                )
-        rnd = _round_of(cells, cols, idx)
-        if rnd is None:
-            if "round" in cols.structure:
-                got = _text(cells[cols.structure["round"]])
-                allowed = ", ".join(r.name for r in plan.rounds)
-                found.append(
-                    finding(
-                        Kind.UNIT_MISMATCH,
-                        f"round {got!r} is not a round of this plan ({allowed})",
-                        column="round",
-                        value=got,
-                        **where,
-                    )
-                )
-            unmatched.append(Unmatched(slot.code, None, shown, table.file, number, "round"))
-            continue
+        slot, rnd = placed
         entry = Entry(slot, rnd, {}, None, None, {}, table.file, number)
-        blanks: list[str] = []
-        for name, i in cols.responses.items():
-            r = responses[name]
-            cell = cells[i]
-            entry.raw[name] = _text(cell)
-            if (number, i) in table.formulas:
-                found.append(
-                    finding(
-                        Kind.FORMULA_CELL,
-                        f"{r.header} holds a formula; its last computed value {_text(cell)!r} was used",
-                        column=r.header,
-                        value=_text(cell),
-                        **where,
-                    )
-                )
-            if is_blank(cell):
-                if r.required:
-                    blanks.append(name)
-                continue
-            p = parse(cell, r, table.decimal_comma)
-            if p.problem is None:
-                entry.values[name] = p.value
-            else:
-                found.append(
-                    finding(
-                        p.problem,
-                        f"{_text(cell)!r} {p.message}",
-                        column=r.header,
-                        value=_text(cell),
-                        suggestion=p.suggestion,
-                        **where,
-                    )
-                )
-        if cols.reason is not None and not is_blank(cells[cols.reason]):
-            text = _text(cells[cols.reason])
-            entry.reason = reasons.get(text.lower(), text)
-            if text.lower() not in reasons:
-                found.append(
-                    finding(
-                        Kind.NOT_A_LEVEL,
-                        f"missing_reason {text!r} is not one of {', '.join(reasons.values())}",
-                        column="missing_reason",
-                        value=text,
-                        **where,
-                    )
-                )
-        if cols.note is not None and not is_blank(cells[cols.note]):
-            entry.note = _text(cells[cols.note])
-        entry.extras = {name: _text(cells[i]) for name, i in cols.extras.items() if not is_blank(cells[i])}
-        if blanks and entry.reason:
-            found.append(
-                finding(
-                    Kind.DECLARED_MISSING,
-                    f"{', '.join(responses[b].header for b in blanks)} missing: {entry.reason}",
-                    column=responses[blanks[0]].header,
-                    value=entry.reason,
-                    **where,
-                )
-            )
-        elif blanks:
-            for b in blanks:
-                found.append(
-                    finding(
-                        Kind.MISSING_VALUE,
-                        f"{responses[b].header} is blank and no missing_reason is given",
-                        column=responses[b].header,
-                        **where,
-                    )
-                )
-        if entry.reason and not blanks and cols.responses:
-            found.append(
-                finding(
-                    Kind.REASON_WITH_VALUE,
-                    f"missing_reason {entry.reason!r} is given, but every value is entered",
-                    column="missing_reason",
-                    value=entry.reason,
-                    **where,
-                )
-            )
-        entry.errors = sum(f.severity is Severity.ERROR for f in found[first_finding:])
+        _read_values(entry, cells, cols, idx, table, found)
+        entry.errors = sum(f.severity is Severity.ERROR for f in found[first:])
         entries.append(entry)
     return entries, unmatched, found
+
+
+def _place(
+    cells: list[Any], cols: Columns, idx: PlanIndex, at: dict[str, Any], found: list[Finding]
+) -> tuple[Slot, str] | str:
+    """The row's slot and round, or why it cannot be placed; findings for its code and structure cells."""
+    plan = idx.plan
+    code_text = _text(cells[cols.structure["code"]])
+    if not code_text:
+        hint = _code_from_place(cells, cols, idx)
+        found.append(finding(Kind.BLANK_CODE, "the row has values but no code", column="code", suggestion=hint, **at))
+        return "blank code"
+    slot_code = idx.slots.get(compact(code_text))
+    if slot_code is None:
+        found.append(_code_finding(code_text, idx, at))
+        return "code not in the plan"
+    slot = idx.slot_by_code[slot_code]
+    unit = plan.unit_by_code[slot.unit]
+    where = {**at, "code": slot.code, "unit": unit.code}
+    planned = {
+        "unit": unit.code,
+        "block": unit.block,
+        "row": unit.row,
+        "col": unit.col,
+        "subsample": slot.subsample,
+        "treatment": unit.treatment,
+    }
+    for name, i in cols.structure.items():
+        if name in planned and not _same(name, cells[i], planned[name]):
+            expected = show_value(planned[name]) if planned[name] is not None else "none"
+            found.append(
+                finding(
+                    Kind.UNIT_MISMATCH,
+                    f"{name} is {_text(cells[i])!r} but the plan has {expected} for {slot.code}",
+                    column=name,
+                    value=_text(cells[i]),
+                    **where,
+                )
+            )
+    rnd = _round_of(cells, cols, idx)
+    if rnd is None:
+        got = _text(cells[cols.structure["round"]]) if "round" in cols.structure else ""
+        found.append(
+            finding(
+                Kind.UNIT_MISMATCH,
+                f"round {got!r} is not a round of this plan ({', '.join(r.name for r in plan.rounds)})",
+                column="round",
+                value=got,
+                **where,
+            )
+        )
+        return "unknown round"
+    return slot, rnd
+
+
+def _code_finding(code_text: str, idx: PlanIndex, at: dict[str, Any]) -> Finding:
+    """unknown-code for a valid code that is not a slot of the plan, bad-code (with suggestions) otherwise."""
+    if is_valid(code_text):
+        what = (
+            "is a unit code; each row needs its subsample slot's code"
+            if compact(code_text) in idx.units
+            else "passes its check but is not a slot of this plan (another study's sheet?)"
+        )
+        return finding(
+            Kind.UNKNOWN_CODE, f"code {code_text!r} {what}", column="code", value=code_text, code=code_text, **at
+        )
+    near = suggest(code_text, idx.slots)
+    hint = " or ".join(near) if near else None
+    msg = f"code {code_text!r} fails its check character (a typing or reading error)"
+    msg += f"; did you mean {hint}?" if hint else "; no planned code is one edit away"
+    return finding(Kind.BAD_CODE, msg, column="code", value=code_text, code=code_text, suggestion=hint, **at)
+
+
+def _read_values(
+    entry: Entry, cells: list[Any], cols: Columns, idx: PlanIndex, table: ReturnedTable, found: list[Finding]
+) -> None:
+    """Parse the row's responses, reason, note and added cells into entry; findings for each problem."""
+    spec = idx.plan.spec
+    responses = {r.name: r for r in spec.response}
+    reasons = {m.lower(): m for m in spec.collection.missing_reasons}
+    where = {"file": table.file, "row": entry.row, "code": entry.slot.code, "unit": entry.slot.unit}
+    blanks: list[str] = []
+    for name, i in cols.responses.items():
+        r, cell = responses[name], cells[i]
+        entry.raw[name] = _text(cell)
+        if (entry.row, i) in table.formulas:
+            found.append(
+                finding(
+                    Kind.FORMULA_CELL,
+                    f"{r.header} holds a formula; its last computed value {_text(cell)!r} was used",
+                    column=r.header,
+                    value=_text(cell),
+                    **where,
+                )
+            )
+        if is_blank(cell):
+            if r.required:
+                blanks.append(name)
+            continue
+        p = parse(cell, r, table.decimal_comma)
+        if p.problem is None:
+            entry.values[name] = p.value
+        else:
+            found.append(
+                finding(
+                    p.problem,
+                    f"{_text(cell)!r} {p.message}",
+                    column=r.header,
+                    value=_text(cell),
+                    suggestion=p.suggestion,
+                    **where,
+                )
+            )
+    if cols.reason is not None and not is_blank(cells[cols.reason]):
+        text = _text(cells[cols.reason])
+        entry.reason = reasons.get(text.lower(), text)
+        if text.lower() not in reasons:
+            found.append(
+                finding(
+                    Kind.NOT_A_LEVEL,
+                    f"missing_reason {text!r} is not one of {', '.join(reasons.values())}",
+                    column="missing_reason",
+                    value=text,
+                    **where,
+                )
+            )
+    if cols.note is not None and not is_blank(cells[cols.note]):
+        entry.note = _text(cells[cols.note])
+    entry.extras = {name: _text(cells[i]) for name, i in cols.extras.items() if not is_blank(cells[i])}
+    if blanks and entry.reason:
+        found.append(
+            finding(
+                Kind.DECLARED_MISSING,
+                f"{', '.join(responses[b].header for b in blanks)} missing: {entry.reason}",
+                column=responses[blanks[0]].header,
+                value=entry.reason,
+                **where,
+            )
+        )
+    elif blanks:
+        found += [
+            finding(
+                Kind.MISSING_VALUE,
+                f"{responses[b].header} is blank and no missing_reason is given",
+                column=responses[b].header,
+                **where,
+            )
+            for b in blanks
+        ]
+    if entry.reason and not blanks and cols.responses:
+        found.append(
+            finding(
+                Kind.REASON_WITH_VALUE,
+                f"missing_reason {entry.reason!r} is given, but every value is entered",
+                column="missing_reason",
+                value=entry.reason,
+                **where,
+            )
+        )
 
 
 def _code_from_place(cells: list[Any], cols: Columns, idx: PlanIndex) -> str | None:

@@ -53,9 +53,8 @@ def tidy_table(
     for m in unmatched:
         rec = {
             "code": m.code or None,
-            "round": m.round,
             "status": "unmatched",
-            "note": "; ".join(f"{k}={v}" for k, v in m.cells.items()),
+            "note": f"{m.why}: " + "; ".join(f"{k}={v}" for k, v in m.cells.items()),
             "source_file": m.file,
             "source_row": m.row,
         }

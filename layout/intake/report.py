@@ -9,7 +9,7 @@ from typing import Any, Final
 from layout import __version__
 from layout.files import refuse_existing, write_new
 from layout.intake.check import CheckResult
-from layout.outputs.printable import BLOCK_COLOURS, _css, _env, _map_grid
+from layout.outputs.printable import BLOCK_COLOURS, map_cells, stylesheet, template_env
 from layout.plan import Plan
 
 STATUS_COLOURS: Final = {
@@ -115,17 +115,17 @@ def _strip_plots(plan: Plan, result: CheckResult, unblind: bool) -> list[dict[st
 
 def report_html(plan: Plan, result: CheckResult, unblind: bool = False) -> str:
     """The human report: summary, findings, completeness map and strip plots."""
-    cells, is_grid = _map_grid(plan)
+    cells, is_grid = map_cells(plan)
     status = _unit_status(result)
     return (
-        _env()
+        template_env()
         .get_template("report.html")
         .render(
             study=plan.spec.study,
             design=plan.spec.design,
             fingerprint=plan.fingerprint,
             version=__version__,
-            css=_css("print.css"),
+            css=stylesheet("print.css"),
             summary=result.summary,
             findings=result.findings,
             rounds=[r.name for r in plan.rounds],

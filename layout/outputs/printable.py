@@ -46,7 +46,8 @@ Tick = Callable[[], None]
 
 
 @cache
-def _env() -> Environment:
+def template_env() -> Environment:
+    """The jinja2 environment over the packaged templates, autoescaping HTML."""
     folder = str(resources.files("layout.templates"))
     return Environment(
         loader=FileSystemLoader(folder),
@@ -57,7 +58,8 @@ def _env() -> Environment:
     )
 
 
-def _css(name: str) -> Markup:
+def stylesheet(name: str) -> Markup:
+    """A packaged CSS file, marked safe for a <style> element."""
     return Markup(resources.files("layout.templates").joinpath(name).read_text(encoding="utf-8"))
 
 
@@ -69,7 +71,7 @@ def _common(plan: Plan) -> dict[str, Any]:
         "fingerprint": plan.fingerprint,
         "short_fp": plan.fingerprint[:12],
         "version": __version__,
-        "css": _css("print.css"),
+        "css": stylesheet("print.css"),
     }
 
 
@@ -113,7 +115,7 @@ def render_sheets(plan: Plan, paper: str = "a4") -> str:
     pages, orientation = sheet_pages(plan, paper)
     responses = [{"header": r.header, "name": r.name, "allowed": allowed_text(r)} for r in plan.spec.response]
     return (
-        _env()
+        template_env()
         .get_template("sheets.html")
         .render(
             **_common(plan),
@@ -165,7 +167,7 @@ def render_labels(plan: Plan, geometry: LabelGeometry, units: bool = False, tick
     text_w = geometry.width - geometry.qr_size - 3 * PAD_MM
     font = round(min(3.4, geometry.height * 0.115, text_w / 7.5), 2)
     return (
-        _env()
+        template_env()
         .get_template("labels.html")
         .render(
             **_common(plan),
@@ -181,7 +183,7 @@ def render_labels(plan: Plan, geometry: LabelGeometry, units: bool = False, tick
     )
 
 
-def _map_grid(plan: Plan) -> tuple[list[list[Unit | None]], bool]:
+def map_cells(plan: Plan) -> tuple[list[list[Unit | None]], bool]:
     """Rows of cells (None for an empty cell), and whether they are a real grid."""
     grid = plan.spec.layout
     if any(u.row is not None for u in plan.units):
@@ -200,13 +202,13 @@ def _map_grid(plan: Plan) -> tuple[list[list[Unit | None]], bool]:
 
 def render_map(plan: Plan, show_treatments: bool) -> str:
     """map.html: the grid coloured by block, codes in cells; treatments only when asked."""
-    cells, is_grid = _map_grid(plan)
+    cells, is_grid = map_cells(plan)
     treatments = list(plan.spec.treatments)
     colour = {t: TREATMENT_COLOURS[i % len(TREATMENT_COLOURS)] for i, t in enumerate(treatments)}
     blocks = sorted({u.block for u in plan.units if u.block is not None})
     cols = max(len(r) for r in cells)
     return (
-        _env()
+        template_env()
         .get_template("map.html")
         .render(
             **_common(plan),

@@ -12,6 +12,8 @@ from typing import Any
 import openpyxl
 import pandas as pd
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from layout import Plan, loads_spec, make_plan
 from layout.codes import compact, slot_code
@@ -523,3 +525,19 @@ class TestNothingLost:
         tidy = check_returns(plan, [path]).tidy
         unmatched = tidy[tidy["status"] == "unmatched"]
         assert len(unmatched) == 1 and "moisture (%)=" in unmatched["note"].iloc[0]
+
+
+class TestNoTracebacks:
+    @settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+    @given(cells=st.lists(st.lists(st.text(max_size=12), max_size=9), max_size=8), use_header=st.booleans())
+    def test_any_csv_gives_findings_not_exceptions(
+        self, plan: Plan, tmp_path: Path, cells: list[list[str]], use_header: bool
+    ) -> None:
+        """Whatever a CSV holds, check_returns reports findings and never raises."""
+        header = ["code", "round", "moisture (%)", "count", "colour", "missing_reason"] if use_header else []
+        path = tmp_path / "any.csv"
+        with path.open("w", newline="", encoding="utf-8") as fh:
+            csv.writer(fh).writerows([header, *cells] if header else cells)
+        result = check_returns(plan, [path])
+        assert result.findings  # at least the missing slots
+        assert len(result.tidy) >= len(plan.slots) * len(plan.rounds)

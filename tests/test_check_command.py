@@ -34,6 +34,20 @@ class TestExitCodes:
         assert (tmp_path / "r" / "report.html").read_text().count("<svg") >= 2
         assert (tmp_path / "r" / "tidy.csv").read_text().startswith("code,unit,serial,treatment")
 
+    def test_terminal_summary(
+        self, setup: tuple[Path, Path], tmp_path: Path, capsys: pytest.CaptureFixture[str]
+    ) -> None:
+        """The terminal shows slot counts, a count per kind and the first findings, errors first."""
+        plan, filled = setup
+        bad = tmp_path / "bad.csv"
+        bad.write_text("code,round,moisture (%),nitrate (mg/kg),sampled_on\nnot-a-code,june,12,3,\n", encoding="utf-8")
+        assert main(["check", str(plan), str(filled), str(bad), "-o", str(tmp_path / "r")]) == 1
+        shown = capsys.readouterr().out
+        assert "128 of 128 slot-rounds found in 2 file(s)" in shown
+        assert "bad-code" in shown and "1 error(s)" in shown
+        lines = [line for line in shown.splitlines() if line.startswith(("error:", "warning:"))]
+        assert lines[0].startswith("error:")
+
     def test_errors_exit_1(self, setup: tuple[Path, Path], tmp_path: Path) -> None:
         """A return with an error exits 1 and the report lists it with all its fields."""
         plan, filled = setup

@@ -81,6 +81,9 @@ class TestProtectionAndValidation:
             elif r.kind == "date":
                 assert dv.type == "date"
             assert r.name in dv.promptTitle and dv.showInputMessage
+            assert r.header in dv.prompt  # the name with its unit
+            if r.min is not None and r.max is not None:
+                assert f"{r.min:g} to {r.max:g}" in dv.prompt
         reason_col = openpyxl.utils.get_column_letter(head.index("missing_reason") + 1)
         assert by_col[reason_col].type == "list"
         assert by_col[reason_col].formula1 == '"' + ",".join(rcbd_plan.spec.collection.missing_reasons) + '"'

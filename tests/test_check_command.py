@@ -47,6 +47,9 @@ class TestExitCodes:
         assert "bad-code" in shown and "1 error(s)" in shown
         lines = [line for line in shown.splitlines() if line.startswith(("error:", "warning:"))]
         assert lines[0].startswith("error:")
+        html = (tmp_path / "r" / "report.html").read_text()
+        rows = [html.index(f'<tr class="{sev}">') for sev in ("error", "warning", "info") if f'<tr class="{sev}">' in html]
+        assert rows == sorted(rows) and len(rows) >= 2  # the findings table lists errors first
 
     def test_errors_exit_1(self, setup: tuple[Path, Path], tmp_path: Path) -> None:
         """A return with an error exits 1 and the report lists it with all its fields."""

@@ -127,7 +127,7 @@ def report_html(plan: Plan, result: CheckResult, unblind: bool = False) -> str:
             version=__version__,
             css=stylesheet("print.css"),
             summary=result.summary,
-            findings=result.findings,
+            findings=sorted(result.findings, key=_severity_rank),
             rounds=[r.name for r in plan.rounds],
             cells=cells,
             is_grid=is_grid,

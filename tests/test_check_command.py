@@ -48,7 +48,9 @@ class TestExitCodes:
         lines = [line for line in shown.splitlines() if line.startswith(("error:", "warning:"))]
         assert lines[0].startswith("error:")
         html = (tmp_path / "r" / "report.html").read_text()
-        rows = [html.index(f'<tr class="{sev}">') for sev in ("error", "warning", "info") if f'<tr class="{sev}">' in html]
+        rows = [
+            html.index(f'<tr class="{sev}">') for sev in ("error", "warning", "info") if f'<tr class="{sev}">' in html
+        ]
         assert rows == sorted(rows) and len(rows) >= 2  # the findings table lists errors first
 
     def test_errors_exit_1(self, setup: tuple[Path, Path], tmp_path: Path) -> None:

@@ -9,6 +9,7 @@ returned workbook can prove which plan it belongs to.
 from __future__ import annotations
 
 import io
+import re
 import zipfile
 from datetime import datetime
 from typing import Final
@@ -196,7 +197,10 @@ def _stable_zip(data: bytes) -> bytes:
             fixed = zipfile.ZipInfo(info.filename, date_time=(1980, 1, 1, 0, 0, 0))
             fixed.compress_type = zipfile.ZIP_DEFLATED
             fixed.external_attr = 0o600 << 16
-            dst.writestr(fixed, src.read(info.filename))
+            data = src.read(info.filename)
+            if info.filename == "docProps/core.xml":  # openpyxl stamps the save time here
+                data = re.sub(rb"(<dcterms:modified[^>]*>)[^<]*", rb"\g<1>2000-01-01T00:00:00Z", data)
+            dst.writestr(fixed, data)
     return out.getvalue()
 
 

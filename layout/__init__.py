@@ -2,10 +2,9 @@
 
 from __future__ import annotations
 
-__version__ = "0.1.0"
-
 from layout.errors import LayoutError, PlanError, SpecError  # noqa: E402
 from layout.intake.check import CheckResult, check_returns  # noqa: E402
+from layout.meta import __version__
 from layout.outputs import SheetOptions, write_sheets  # noqa: E402
 from layout.plan import Plan, load_plan, make_plan  # noqa: E402
 from layout.spec import Spec, load_spec, loads_spec  # noqa: E402

@@ -11,16 +11,16 @@ from pathlib import Path
 from rich.console import Console
 from rich.table import Table
 
-from layout import __version__
 from layout.demo import run_demo
-from layout.errors import LayoutError, UsageError
+from layout.errors import LayoutError, PlanError, UsageError
 from layout.intake.check import CheckResult, check_returns
 from layout.intake.findings import Severity
 from layout.intake.report import write_report
+from layout.meta import __version__
 from layout.outputs import PRODUCTS, SheetOptions, write_sheets
 from layout.outputs.labels import LabelGeometry, parse_pair
 from layout.plan import Plan, load_plan, make_plan
-from layout.spec import load_spec
+from layout.spec import MAX_SEED, load_spec
 
 # Markup off: titles, labels and messages are the user's text and may hold brackets.
 out = Console(highlight=False, markup=False)
@@ -70,9 +70,8 @@ def print_plan_summary(plan: Plan, path: Path | None) -> None:
     d = spec.design
     blocks = f", {d.blocks} blocks" if d.blocks else ""
     out.print(f"design      {d.type}{blocks}, {len(spec.treatments)} treatments")
-    out.print(
-        f"units       {len(plan.units)} {d.unit_name}s × {d.subsamples} {d.subsample_name}s = {len(plan.slots)} slots"
-    )
+    per = "varying" if plan.subsamples_vary else str(d.most_subsamples)
+    out.print(f"units       {len(plan.units)} {d.unit_name}s × {per} {d.subsample_name}s = {len(plan.slots)} slots")
     out.print(f"rounds      {', '.join(r.name for r in plan.rounds)} (order: {spec.collection.order})")
     out.print(f"seed        {plan.seed}")
     out.print(f"fingerprint {plan.fingerprint}")
@@ -80,12 +79,29 @@ def print_plan_summary(plan: Plan, path: Path | None) -> None:
         out.print(f"written     {path}")
 
 
+def _replaced(path: Path, force: bool) -> Plan | None:
+    """The plan that --force is about to replace, when there is a readable one."""
+    if not force or not path.is_file():
+        return None
+    try:
+        return load_plan(path)
+    except PlanError:
+        return None
+
+
 def _plan(args: argparse.Namespace) -> int:
     spec = load_spec(args.spec)
-    plan = make_plan(spec, seed=args.seed)
+    old = _replaced(Path(args.output), args.force)
+    plan = make_plan(spec, seed=args.seed, replacing=old)
     path = plan.save(args.output, force=args.force)
     if args.seed is None and spec.study.seed is None:
         out.print(f"No seed was given; drew {plan.seed} and recorded it in the plan.", style="bold")
+    if old is not None and plan.replaces is not None:
+        out.print(
+            f"This plan replaces {old.fingerprint[:12]}: its codes carry other check letters, so sheets and "
+            "files of the old plan are refused by 'layout check' (print the new sheets).",
+            style="bold",
+        )
     print_plan_summary(plan, path)
     return 0
 
@@ -182,6 +198,12 @@ def _check(args: argparse.Namespace) -> int:
     folder = Path(args.output) if args.output else Path(args.plan).parent / "checked"
     written = write_report(plan, result, folder, force=args.force, unblind=args.unblind)
     print_check_summary(result, written)
+    if plan.spec.study.blind:
+        out.print(
+            "This study is blind: tidy.csv names each unit's treatment. Keep it with the study lead, "
+            "away from the people who collect and measure.",
+            style="bold",
+        )
     return 1 if result.errors else 0
 
 
@@ -206,9 +228,9 @@ def _seed(text: str) -> int:
     try:
         value = int(text, 10)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"must be a whole number from 0 to 2^64-1, got {text!r}") from None
-    if not 0 <= value < 2**64:
-        raise argparse.ArgumentTypeError(f"must be a whole number from 0 to 2^64-1, got {text!r}")
+        raise argparse.ArgumentTypeError(f"must be a whole number from 0 to 2^53-1, got {text!r}") from None
+    if not 0 <= value <= MAX_SEED:
+        raise argparse.ArgumentTypeError(f"must be a whole number from 0 to 2^53-1, got {text!r}")
     return value
 
 

@@ -9,9 +9,11 @@ from __future__ import annotations
 from collections.abc import Callable
 from dataclasses import dataclass, field
 
-from layout.fieldmap import walk_cells
+from layout.fieldmap import grouped_cells, tiling, walk_cells
+from layout.latin import random_latin_square
 from layout.rng import Stream
 from layout.spec import Spec
+from layout.spec_rules import group_sizes
 
 
 @dataclass(frozen=True)
@@ -64,16 +66,14 @@ def _split_plot(spec: Spec, stream: Stream) -> list[Placement]:
 
 
 def _latin_square(spec: Spec, stream: Stream) -> list[Placement]:
-    """The square (i + j) mod t with rows, then columns, then symbols randomly permuted."""
+    """A square drawn uniformly from all Latin squares of order t (layout.latin), walked row by row."""
     treatments = spec.treatment_levels()
     t = len(treatments)
-    rows = stream.shuffle(range(t))
-    cols = stream.shuffle(range(t))
-    symbols = stream.shuffle(range(t))
+    square = random_latin_square(t, stream)
     walk = spec.layout.walk if spec.layout else "serpentine"
     out: list[Placement] = []
     for r, c in walk_cells(t, t, walk):
-        label, levels = treatments[symbols[(rows[r - 1] + cols[c - 1]) % t]]
+        label, levels = treatments[square[r - 1][c - 1]]
         out.append(Placement(label, dict(levels), row=r, col=c))
     return out
 
@@ -92,8 +92,12 @@ def randomize(spec: Spec, stream: Stream) -> list[Placement]:
     grid = spec.layout
     if grid is None or spec.design.type == "latin-square":
         return placements
-    # Walk order fills the grid, so blocks take contiguous bands of the walk.
-    cells = walk_cells(grid.rows, grid.cols, grid.walk)
+    # blocks and whole plots are rectangles, each walked completely before the next (layout.fieldmap)
+    groups, sizes = group_sizes(spec)
+    shapes = tiling(grid.rows, grid.cols, groups, sizes) if sizes else []
+    if shapes is None:  # refused by the spec rules; kept here so a bypassed spec still fails loudly
+        raise ValueError("the grid cannot hold the blocks as rectangles")
+    cells = grouped_cells(grid.rows, grid.cols, grid.walk, groups, shapes)
     return [
         Placement(p.treatment, p.levels, p.block, p.whole_plot, r, c)
         for p, (r, c) in zip(placements, cells[: len(placements)], strict=True)

@@ -1,8 +1,10 @@
-"""The plan: every unit and slot of a randomized study, saved as canonical JSON.
+"""The plan: every unit and slot of a randomized study, saved as JSON with a fingerprint.
 
-``plan.json`` is the single source of truth; its fingerprint is the SHA-256 of the
-canonical JSON (sorted keys, no spaces, UTF-8) of everything but the fingerprint itself
-and the tool's version, so an edited plan is caught when it is loaded.
+``plan.json`` is the single source of truth. Its fingerprint is the SHA-256 of the plan
+object without its ``fingerprint`` and ``tool`` keys, serialised by RFC 8785 (the JSON
+Canonicalization Scheme), so any language can recompute it; loading a plan recomputes
+it and refuses a plan whose stored value differs. Numbers in the file are written as
+RFC 8785 writes them, so the file's own text parses to the same values everywhere.
 """
 
 from __future__ import annotations
@@ -15,17 +17,18 @@ from functools import cached_property
 from pathlib import Path
 from typing import Any, Final
 
+import rfc8785
 from pydantic import ValidationError
 
-from layout import __version__
-from layout.codes import serial_width, slot_code, unit_code
+from layout.codes import CHECK_LETTERS, MODULUS, SCHEME, serial_width, slot_code, subsample_width, unit_code
 from layout.designs import collection_order, randomize
 from layout.errors import PlanError
 from layout.files import write_new
+from layout.meta import PLAN_FORMAT, __version__
 from layout.rng import ALGORITHM, Stream
 from layout.spec import Spec
 
-FORMAT: Final = "layout-plan/1"
+FORMAT: Final = PLAN_FORMAT
 _UNFINGERPRINTED: Final = ("fingerprint", "tool")
 
 
@@ -72,6 +75,8 @@ class Plan:
     units: tuple[Unit, ...]
     slots: tuple[Slot, ...]
     rounds: tuple[Round, ...]
+    salt: int = 0
+    replaces: dict[str, Any] | None = None
 
     def content(self) -> dict[str, Any]:
         """The fingerprinted content as plain JSON data."""
@@ -79,6 +84,8 @@ class Plan:
             "format": FORMAT,
             "seed": self.seed,
             "rng": self.rng,
+            "codes": {"scheme": SCHEME, "letters": CHECK_LETTERS, "salt": self.salt},
+            "replaces": self.replaces,
             "spec": self.spec.model_dump(mode="json"),
             "units": [asdict(u) for u in self.units],
             "slots": [asdict(s) for s in self.slots],
@@ -95,6 +102,19 @@ class Plan:
         """Units keyed by code."""
         return {u.code: u for u in self.units}
 
+    @cached_property
+    def slots_of(self) -> dict[str, tuple[Slot, ...]]:
+        """Each unit's slots in subsample order, keyed by unit code."""
+        out: dict[str, list[Slot]] = {}
+        for s in self.slots:
+            out.setdefault(s.unit, []).append(s)
+        return {k: tuple(v) for k, v in out.items()}
+
+    @property
+    def subsamples_vary(self) -> bool:
+        """Whether units have different numbers of subsamples."""
+        return len({len(v) for v in self.slots_of.values()}) > 1
+
     def to_json(self) -> str:
         """The plan file's text: readable, stable, ending in a newline."""
         data = {"format": FORMAT, "fingerprint": self.fingerprint, "tool": {"name": "layout", "version": __version__}}
@@ -107,24 +127,48 @@ class Plan:
 
 
 def _readable_json(data: dict[str, Any]) -> str:
-    """Indented JSON, but with one line per unit, slot and round so diffs stay readable."""
+    """Indented JSON, with one line per unit, slot and round so diffs stay readable; numbers as RFC 8785 writes them."""
     parts = []
     for key, value in data.items():
         if key in ("units", "slots", "rounds"):
-            items = ",\n".join("  " + json.dumps(item, ensure_ascii=False) for item in value)
+            items = ",\n".join("  " + _inline(item) for item in value)
             text = f"[\n{items}\n ]"
         else:
-            text = json.dumps(value, indent=1, ensure_ascii=False).replace("\n", "\n ")
-        parts.append(f" {json.dumps(key)}: {text}")
+            text = _indented(value, 1)
+        parts.append(f" {_scalar(key)}: {text}")
     return "{\n" + ",\n".join(parts) + "\n}\n"
 
 
-def _canonical(data: dict[str, Any]) -> bytes:
-    return json.dumps(data, sort_keys=True, separators=(",", ":"), ensure_ascii=False).encode("utf-8")
+def _scalar(value: Any) -> str:
+    return rfc8785.dumps(value).decode("utf-8")
+
+
+def _inline(value: Any) -> str:
+    if isinstance(value, dict):
+        return "{" + ", ".join(f"{_scalar(k)}: {_inline(v)}" for k, v in value.items()) + "}"
+    if isinstance(value, list | tuple):
+        return "[" + ", ".join(_inline(v) for v in value) + "]"
+    return _scalar(value)
+
+
+def _indented(value: Any, depth: int) -> str:
+    pad = " " * (depth + 1)
+    if isinstance(value, dict) and value:
+        inner = ",\n".join(f"{pad}{_scalar(k)}: {_indented(v, depth + 1)}" for k, v in value.items())
+        return "{\n" + inner + "\n" + " " * depth + "}"
+    if isinstance(value, list | tuple) and value and any(isinstance(v, dict | list) for v in value):
+        inner = ",\n".join(pad + _indented(v, depth + 1) for v in value)
+        return "[\n" + inner + "\n" + " " * depth + "]"
+    return _inline(value)
+
+
+def canonical(data: dict[str, Any]) -> bytes:
+    """The fingerprinted bytes: RFC 8785 canonical JSON of the plan without fingerprint and tool."""
+    return rfc8785.dumps({k: v for k, v in data.items() if k not in _UNFINGERPRINTED})
 
 
 def _fingerprint(data: dict[str, Any]) -> str:
-    return hashlib.sha256(_canonical({k: v for k, v in data.items() if k not in _UNFINGERPRINTED})).hexdigest()
+    return hashlib.sha256(canonical(data)).hexdigest()
 
 
 def draw_seed() -> int:
@@ -132,30 +176,61 @@ def draw_seed() -> int:
     return secrets.randbelow(10**9)
 
 
-def make_plan(spec: Spec, seed: int | None = None) -> Plan:
-    """Randomize a validated spec; seed overrides the spec's, and is drawn when neither gives one."""
+def make_plan(spec: Spec, seed: int | None = None, replacing: Plan | None = None) -> Plan:
+    """Randomize a validated spec; seed overrides the spec's, and is drawn when neither gives one.
+
+    replacing is the plan this one replaces (``plan --force``): when the draw differs
+    from it, the codes' salt is made to differ too, so a return of the old draw can never
+    pass as this one.
+    """
     if seed is None:
         seed = spec.study.seed if spec.study.seed is not None else draw_seed()
     spec = spec.model_copy(update={"study": spec.study.model_copy(update={"seed": seed})})
     stream = Stream(seed)
     placements = randomize(spec, stream)
-    study, subsamples = spec.study.id, spec.design.subsamples
+    rounds_order = [
+        collection_order(placements, stream) if spec.collection.order == "random" else list(range(len(placements)))
+        for _ in spec.collection.rounds
+    ]
+    salt = stream.below(MODULUS)  # drawn last, so the randomization itself does not depend on it
+    replaces = None
+    if replacing is not None and replacing.spec.study.id == spec.study.id:
+        same = _build(spec, seed, placements, rounds_order, salt, None)
+        if same.fingerprint == replacing.fingerprint:
+            return same  # the same draw again: its codes and sheets stay valid
+        if salt == replacing.salt:
+            salt = (replacing.salt + 1 + stream.below(MODULUS - 1)) % MODULUS
+        replaces = {"fingerprint": replacing.fingerprint, "salt": replacing.salt}
+    return _build(spec, seed, placements, rounds_order, salt, replaces)
+
+
+def _build(
+    spec: Spec,
+    seed: int,
+    placements: list[Any],
+    rounds_order: list[list[int]],
+    salt: int,
+    replaces: dict[str, Any] | None,
+) -> Plan:
+    study = spec.study.id
     width = serial_width(len(placements))
+    sub_width = subsample_width(spec.design.most_subsamples)
     seen: dict[str, int] = {}
     units: list[Unit] = []
     slots: list[Slot] = []
     for serial, p in enumerate(placements, start=1):
         seen[p.treatment] = seen.get(p.treatment, 0) + 1
-        code = unit_code(study, serial, width)
+        code = unit_code(study, serial, width, salt)
         units.append(
             Unit(code, serial, p.treatment, p.levels, p.block, seen[p.treatment], p.row, p.col, p.whole_plot, serial)
         )
-        slots += [Slot(slot_code(study, serial, width, s, subsamples), code, s) for s in range(1, subsamples + 1)]
-    rounds = []
-    for name in spec.collection.rounds:
-        order = collection_order(placements, stream) if spec.collection.order == "random" else range(len(units))
-        rounds.append(Round(name, tuple(units[i].code for i in order)))
-    return Plan(spec, seed, dict(ALGORITHM), tuple(units), tuple(slots), tuple(rounds))
+        count = spec.subsamples_of(p.treatment, p.levels)
+        slots += [Slot(slot_code(study, serial, width, s, sub_width, salt), code, s) for s in range(1, count + 1)]
+    rounds = [
+        Round(name, tuple(units[i].code for i in order))
+        for name, order in zip(spec.collection.rounds, rounds_order, strict=True)
+    ]
+    return Plan(spec, seed, dict(ALGORITHM), tuple(units), tuple(slots), tuple(rounds), salt, replaces)
 
 
 def parse_plan(text: str, file: str = "plan.json") -> Plan:
@@ -163,14 +238,27 @@ def parse_plan(text: str, file: str = "plan.json") -> Plan:
     try:
         data = json.loads(text)
     except json.JSONDecodeError as exc:
-        raise PlanError(f"{file}: line {exc.lineno}, column {exc.colno}: not valid JSON: {exc.msg}") from None
+        raise PlanError.at(file, f"line {exc.lineno}, column {exc.colno}", f"not valid JSON: {exc.msg}") from None
     if not isinstance(data, dict) or data.get("format") != FORMAT:
         found = data.get("format") if isinstance(data, dict) else None
-        raise PlanError(f"{file}: not a layout plan: format must be {FORMAT!r}, got {found!r}")
-    if data.get("fingerprint") != _fingerprint(data):
-        raise PlanError(
-            f"{file}: fingerprint does not match the content; the plan was edited after it was made. "
-            "Restore the original file, or make a new plan with 'layout plan'"
+        if isinstance(found, str) and found.startswith("layout-plan/"):
+            raise PlanError.at(
+                file,
+                "format",
+                f"made by an earlier version of layout ({found}); this version reads {FORMAT}. "
+                "Use the version that made it, or make the plan again with 'layout plan'",
+            )
+        raise PlanError.at(file, "format", f"not a layout plan: must be {FORMAT!r}, got {found!r}")
+    try:
+        recomputed = _fingerprint(data)
+    except (rfc8785.CanonicalizationError, TypeError, ValueError) as exc:
+        raise PlanError.at(file, "", f"cannot be canonicalised to check its fingerprint ({exc})") from None
+    if data.get("fingerprint") != recomputed:
+        raise PlanError.at(
+            file,
+            "fingerprint",
+            f"the file says {data.get('fingerprint')!r} but its content gives {recomputed!r}; "
+            "the plan was edited after it was made. Restore the original file, or make a new plan with 'layout plan'",
         )
     try:
         plan = Plan(
@@ -180,12 +268,17 @@ def parse_plan(text: str, file: str = "plan.json") -> Plan:
             units=tuple(Unit(**u) for u in data["units"]),
             slots=tuple(Slot(**s) for s in data["slots"]),
             rounds=tuple(Round(r["name"], tuple(r["order"])) for r in data["rounds"]),
+            salt=int(data["codes"]["salt"]),
+            replaces=data.get("replaces"),
         )
     except (KeyError, TypeError, ValueError, ValidationError) as exc:
-        raise PlanError(f"{file}: not a complete layout plan ({type(exc).__name__}: {exc})") from None
+        raise PlanError.at(file, "", f"not a complete layout plan ({type(exc).__name__}: {exc})") from None
     if plan.rng.get("version") != ALGORITHM["version"] or plan.rng.get("name") != ALGORITHM["name"]:
-        raise PlanError(
-            f"{file}: made with random stream {plan.rng.get('name')!r} version {plan.rng.get('version')!r}, which this version of layout does not know"
+        raise PlanError.at(
+            file,
+            "rng",
+            f"made with random stream {plan.rng.get('name')!r} version {plan.rng.get('version')!r}, "
+            "which this version of layout does not know",
         )
     return plan
 
@@ -196,9 +289,9 @@ def load_plan(path: str | Path) -> Plan:
     try:
         text = p.read_text(encoding="utf-8")
     except FileNotFoundError:
-        raise PlanError(f"{p}: no such file") from None
+        raise PlanError.at(str(p), "", "no such file") from None
     except IsADirectoryError:
-        raise PlanError(f"{p}: is a folder; name the plan.json file that 'layout plan' wrote") from None
+        raise PlanError.at(str(p), "", "is a folder; name the plan.json file that 'layout plan' wrote") from None
     except (OSError, UnicodeDecodeError) as exc:
-        raise PlanError(f"{p}: cannot be read: {exc}") from None
+        raise PlanError.at(str(p), "", f"cannot be read: {exc}") from None
     return parse_plan(text, str(p))

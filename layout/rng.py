@@ -22,12 +22,15 @@ T = TypeVar("T")
 
 ALGORITHM: Final = {
     "name": "layout-stream",
-    "version": 1,
+    "version": 2,
     "bit_generator": "PCG64 (numpy random_raw, seeded by numpy SeedSequence)",
     "integers": "rejection: reject x >= 2^64 - (2^64 mod n), return x mod n",
     "shuffle": "Fisher-Yates, i from n-1 down to 1, j = below(i+1)",
+    "latin_square": "Jacobson-Matthews (1996) chain, n^3+100 moves from the cyclic square, then rows, columns, symbols shuffled",
+    "salt": "below(23), drawn after every other use of the stream",
 }
 _TWO_64: Final = 1 << 64
+_BATCH: Final = 512
 
 
 class Stream:
@@ -38,10 +41,13 @@ class Stream:
             raise ValueError(f"seed must be a non-negative integer, got {seed}")
         self.seed = seed
         self._bits = np.random.PCG64(seed)
+        self._buffer: list[int] = []
 
     def raw(self) -> int:
-        """The next raw 64-bit word of PCG64."""
-        return int(self._bits.random_raw())
+        """The next raw 64-bit word of PCG64 (taken in batches: the same words as one call each)."""
+        if not self._buffer:
+            self._buffer = self._bits.random_raw(_BATCH).tolist()[::-1]
+        return self._buffer.pop()
 
     def below(self, n: int) -> int:
         """A uniform integer in 0..n-1."""

@@ -26,15 +26,14 @@ from pydantic import (
 )
 
 from layout.errors import Problem, SpecError
+from layout.names import clash
 from layout.spec_messages import problems_from_validation, toml_problem
 from layout.spec_rules import design_rules
 
 DESIGN_TYPES: Final = ("crd", "rcbd", "latin-square", "split-plot")
 RESPONSE_KINDS: Final = ("number", "integer", "category", "text", "date")
-DEFAULT_MISSING_REASONS: Final = ("dead", "lost", "damaged", "not measured")
-STRUCTURE_COLUMNS: Final = frozenset(
-    {"code", "unit", "block", "row", "col", "subsample", "round", "treatment", "missing_reason", "note"}
-)
+DEFAULT_MISSING_REASONS: Final = ("not measured", "lost", "damaged", "other")
+MAX_SEED: Final = 2**53 - 1  # the largest whole number every JSON reader keeps exactly (RFC 8785, I-JSON)
 
 
 # Scalars are strict (a quoted "5" is not a number); lists are accepted for tuples.
@@ -77,8 +76,8 @@ class Study(_Frozen):
     @field_validator("seed")
     @classmethod
     def _seed(cls, v: int | None) -> int | None:
-        if v is not None and not 0 <= v < 2**64:
-            raise ValueError(f"must be a whole number from 0 to 2^64-1, got {v}")
+        if v is not None and not 0 <= v <= MAX_SEED:
+            raise ValueError(f"must be a whole number from 0 to 2^53-1, got {v}")
         return v
 
 
@@ -90,7 +89,10 @@ class Factor(_Frozen):
     @field_validator("name")
     @classmethod
     def _name(cls, v: str) -> str:
-        return _label(v)
+        _label(v)
+        if why := clash(v):
+            raise ValueError(f"{why}; choose another name")
+        return v
 
     @field_validator("levels")
     @classmethod
@@ -109,7 +111,7 @@ class Design(_Frozen):
     type: Literal["crd", "rcbd", "latin-square", "split-plot"]
     replicates: Int | dict[Str, Int] | None = None
     blocks: Int | None = None
-    subsamples: Int = 1
+    subsamples: Int | dict[Str, Int] = 1
     unit_name: Str = "unit"
     subsample_name: Str = "subsample"
     treatments: tuple[Str, ...] | None = None
@@ -122,12 +124,26 @@ class Design(_Frozen):
             return v
         raise ValueError(f"must be a whole number, or a table of treatment = whole number, got {_show(v)}")
 
+    @field_validator("subsamples", mode="before")
+    @classmethod
+    def _subsamples_shape(cls, v: Any) -> Any:
+        table = isinstance(v, dict) and all(isinstance(k, str) and type(n) is int for k, n in v.items())
+        if type(v) is int or table:
+            return v
+        raise ValueError(f"must be a whole number, or a table of treatment = whole number, got {_show(v)}")
+
     @field_validator("subsamples")
     @classmethod
-    def _subsamples(cls, v: int) -> int:
-        if not 1 <= v <= 999:
-            raise ValueError(f"must be a whole number from 1 to 999 (1 = no subsampling), got {v}")
+    def _subsamples(cls, v: int | dict[str, int]) -> int | dict[str, int]:
+        for n in v.values() if isinstance(v, dict) else (v,):
+            if not 1 <= n <= 999:
+                raise ValueError(f"must be a whole number from 1 to 999 (1 = no subsampling), got {n}")
         return v
+
+    @property
+    def most_subsamples(self) -> int:
+        """The largest number of subsamples any unit has."""
+        return max(self.subsamples.values()) if isinstance(self.subsamples, dict) else self.subsamples
 
     @field_validator("unit_name", "subsample_name")
     @classmethod
@@ -151,6 +167,14 @@ class Grid(_Frozen):
     rows: Int
     cols: Int
     walk: Literal["serpentine", "rows"] = "serpentine"
+    rows_are: Str | None = None
+    cols_are: Str | None = None
+    landmark: Str | None = None
+
+    @field_validator("rows_are", "cols_are", "landmark")
+    @classmethod
+    def _words(cls, v: str | None) -> str | None:
+        return v if v is None else _label(v)
 
     @field_validator("rows", "cols")
     @classmethod
@@ -174,8 +198,8 @@ class Response(_Frozen):
     @classmethod
     def _name(cls, v: str) -> str:
         _label(v)
-        if v.lower() in STRUCTURE_COLUMNS:
-            raise ValueError(f"{v!r} is a column the sheets use already; choose another name")
+        if why := clash(v):
+            raise ValueError(f"{why}; choose another name")
         return v
 
     @field_validator("decimals")
@@ -202,11 +226,39 @@ class Response(_Frozen):
         """The column header on sheets: the name, with the unit in brackets when it has one."""
         return f"{self.name} ({self.unit})" if self.unit else self.name
 
+    @property
+    def allowed_text(self) -> str:
+        """What the response accepts, in words, for input messages and sheet headers."""
+        if self.kind in ("number", "integer"):
+            unit = f" {self.unit}" if self.unit else ""
+            if self.min is not None and self.max is not None:
+                rng = f"{self.min:g} to {self.max:g}{unit}"
+            elif self.min is not None:
+                rng = f"at least {self.min:g}{unit}"
+            elif self.max is not None:
+                rng = f"at most {self.max:g}{unit}"
+            else:
+                rng = f"any value{unit}"
+            if self.kind == "integer":
+                return f"whole number, {rng}"
+            if self.decimals is None:
+                return f"number, {rng}"
+            places = (
+                "no decimals" if self.decimals == 0 else f"{self.decimals} decimal{'s' if self.decimals > 1 else ''}"
+            )
+            return f"number, {rng}, {places}"
+        if self.kind == "category":
+            return "one of: " + ", ".join(self.levels or ())
+        if self.kind == "date":
+            return "date, YYYY-MM-DD"
+        return "free text"
+
 
 class Collection(_Frozen):
     rounds: tuple[Str, ...] = ("1",)
     order: Literal["walk", "random"] = "walk"
     missing_reasons: tuple[Str, ...] = DEFAULT_MISSING_REASONS
+    labels_per_round: Bool = False
 
     @field_validator("rounds", "missing_reasons")
     @classmethod
@@ -241,6 +293,16 @@ class Spec(_Frozen):
             combos = [{**c, f.name: level} for c in combos for level in f.levels]
         return [("/".join(c.values()), c) for c in combos]
 
+    def subsamples_of(self, treatment: str, levels: dict[str, str]) -> int:
+        """Subsamples per unit of a treatment: the design's number, or its entry in the table."""
+        table = self.design.subsamples
+        if not isinstance(table, dict):
+            return table
+        if treatment in table:
+            return table[treatment]
+        whole = next((f.name for f in self.factor if f.whole_plot), None)
+        return table[levels[whole]] if whole is not None else 1
+
 
 def _show(value: Any) -> str:
     return repr(value) if isinstance(value, str) else json.dumps(value, default=str)
@@ -255,15 +317,60 @@ def _no_duplicates(values: tuple[str, ...]) -> None:
 
 
 def parse_spec(data: dict[str, Any], file: str = "spec") -> Spec:
-    """A validated Spec from parsed TOML/JSON data; SpecError lists every problem."""
+    """A validated Spec from parsed TOML/JSON data; SpecError lists every problem in one pass."""
     try:
-        spec = Spec.model_validate(data)
+        spec: Spec | None = Spec.model_validate(data)
+        problems: list[Problem] = []
+        removed: list[str] = []
     except ValidationError as exc:
-        raise SpecError(problems_from_validation(exc, file, Spec)) from None
-    problems = [Problem(file, where, msg) for where, msg in design_rules(spec)]
+        problems = problems_from_validation(exc, file, Spec)
+        spec, removed = _without_bad_keys(data, exc)
+    if spec is not None:
+        # cross-key rules on what is valid; a rule about a key already reported would only repeat it
+        for where, msg in design_rules(spec):
+            if not any(
+                where == r or where.startswith((r + ".", r + "[")) or r.startswith(where + ".") for r in removed
+            ):
+                problems.append(Problem(file, where, msg))
     if problems:
         raise SpecError(problems)
+    assert spec is not None
     return spec
+
+
+def _without_bad_keys(data: dict[str, Any], exc: ValidationError) -> tuple[Spec | None, list[str]]:
+    """The spec with every key that failed its own check left out, if what remains is a spec."""
+    import copy
+
+    from layout.spec_messages import key_path
+
+    trimmed = copy.deepcopy(data)
+    removed: list[str] = []
+    for err in exc.errors():
+        loc = tuple(p for p in err["loc"] if isinstance(p, int) or p in _field_names())
+        if not loc:
+            return None, removed
+        holder: Any = trimmed
+        for part in loc[:-1]:
+            try:
+                holder = holder[part]
+            except (KeyError, IndexError, TypeError):
+                holder = None
+                break
+        if isinstance(holder, dict) and loc[-1] in holder:
+            del holder[loc[-1]]
+        removed.append(key_path(loc))
+    try:
+        return Spec.model_validate(trimmed), removed
+    except ValidationError:
+        return None, removed
+
+
+def _field_names() -> set[str]:
+    names: set[str] = set()
+    for model in (Spec, Study, Design, Factor, Grid, Response, Collection):
+        names |= set(model.model_fields)
+    return names
 
 
 def loads_spec(text: str, file: str = "spec.toml") -> Spec:

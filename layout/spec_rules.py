@@ -5,6 +5,8 @@ from __future__ import annotations
 from collections.abc import Iterator
 from typing import TYPE_CHECKING, Final
 
+from layout.fieldmap import tiling, workable_grids
+from layout.names import name_key
 from layout.spec_messages import close_match
 
 if TYPE_CHECKING:
@@ -28,15 +30,69 @@ def unit_count(spec: Spec) -> int:
     return t * (d.blocks or 0)
 
 
+def slot_count(spec: Spec) -> int:
+    """How many subsample slots the design makes (per round)."""
+    d = spec.design
+    if not isinstance(d.subsamples, dict):
+        return unit_count(spec) * d.subsamples
+    per_treatment = unit_count(spec) // max(1, len(spec.treatments))
+    total = 0
+    for label, levels in spec.treatment_levels():
+        units = d.replicates[label] if isinstance(d.replicates, dict) else per_treatment
+        total += units * spec.subsamples_of(label, levels)
+    return total
+
+
+def group_sizes(spec: Spec) -> tuple[int, list[int]]:
+    """How many blocks, and the units per block and per whole plot, that must stay together on a grid."""
+    d = spec.design
+    if d.type == "rcbd":
+        return d.blocks or 0, [len(spec.treatments)]
+    if d.type == "split-plot":
+        whole = next(f for f in spec.factor if f.whole_plot)
+        per_plot = len(spec.treatments) // len(whole.levels)
+        return d.blocks or 0, [len(spec.treatments), per_plot]
+    return 0, []
+
+
 def design_rules(spec: Spec) -> list[tuple[str, str]]:
     """(key path, message) for every cross-key problem in a shape-valid spec."""
     problems = list(_treatments(spec))
     if not problems:
         problems += list(_design(spec))
+        problems += list(_subsamples(spec))
     problems += list(_responses(spec))
+    problems += list(_names(spec))
     if not problems:
         problems += list(_size(spec))
     return problems
+
+
+def _subsamples(spec: Spec) -> Rule:
+    table = spec.design.subsamples
+    if not isinstance(table, dict):
+        return
+    whole = next((f for f in spec.factor if f.whole_plot), None)
+    keys = list(spec.treatments) + (list(whole.levels) if whole and spec.design.type == "split-plot" else [])
+    for name in table:
+        if name not in keys:
+            what = "a treatment or whole-plot level" if whole else "a treatment"
+            yield f"design.subsamples.{name}", f"is not {what} of this design{close_match(name, keys)}"
+    for label, levels in spec.treatment_levels():
+        if label not in table and not (whole and levels.get(whole.name) in table):
+            yield "design.subsamples", f"gives no number for treatment {label!r}; list every treatment"
+            return
+
+
+def _names(spec: Spec) -> Rule:
+    """Factor and response names must differ from each other, as tidy.csv gives each a column."""
+    responses = {name_key(r.name) for r in spec.response}
+    for i, f in enumerate(spec.factor):
+        if name_key(f.name) in responses:
+            yield (
+                f"factor[{i + 1}].name",
+                f"{f.name!r} is also a response name; factors and responses need different names",
+            )
 
 
 def _treatments(spec: Spec) -> Rule:
@@ -154,10 +210,10 @@ def _size(spec: Spec) -> Rule:
     t = len(spec.treatments)
     if n > MAX_UNITS:
         yield "design", f"makes {n} units; at most {MAX_UNITS} are supported"
-    elif n * spec.design.subsamples > MAX_SLOTS:
+    elif slot_count(spec) > MAX_SLOTS:
         yield (
             "design.subsamples",
-            f"makes {n * spec.design.subsamples} subsample slots; at most {MAX_SLOTS} are supported",
+            f"makes {slot_count(spec)} subsample slots; at most {MAX_SLOTS} are supported",
         )
     grid = spec.layout
     if grid is None:
@@ -175,3 +231,16 @@ def _size(spec: Spec) -> Rule:
                 f"make rows × cols at least {n}"
             ),
         )
+    else:
+        groups, sizes = group_sizes(spec)
+        if sizes and tiling(grid.rows, grid.cols, groups, sizes) is None:
+            what = f"{groups} blocks of {sizes[0]} units"
+            if len(sizes) > 1:
+                what += f", each in whole plots of {sizes[1]}"
+            shapes = workable_grids(n, groups, sizes, (grid.rows, grid.cols))
+            hint = ", ".join(f"rows = {r}, cols = {c}" for r, c in shapes)
+            yield (
+                "layout",
+                f"a {grid.rows} × {grid.cols} grid cannot hold {what} as rectangles, so a block would wrap "
+                f"across grid rows; grids that work: {hint}",
+            )

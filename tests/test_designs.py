@@ -8,8 +8,10 @@ from math import factorial
 import pytest
 from scipy import stats
 
-from layout import make_plan
+from layout import SpecError, make_plan
 from layout.fieldmap import walk_cells
+from layout.latin import random_latin_square
+from layout.rng import Stream
 from tests.helpers import spec_from
 
 SEEDS = range(40)
@@ -74,6 +76,7 @@ class TestRcbd:
         )
         blocks = [u.block for u in sorted(plan.units, key=lambda u: u.walk)]
         assert blocks == sorted(blocks)
+        # each block is one full row here, so the walk is the plain serpentine
         assert [(u.row, u.col) for u in plan.units] == walk_cells(3, 5, "serpentine")
 
     def test_blocks_shuffled_independently(self) -> None:
@@ -85,6 +88,61 @@ class TestRcbd:
             same += [u.treatment for u in units[:4]] == [u.treatment for u in units[4:]]
         # Independent shuffles agree with probability 1/24: about 8 of 200.
         assert same < 25
+
+
+def _is_rectangle(cells: set[tuple[int, int]]) -> bool:
+    rows = {r for r, _ in cells}
+    cols = {c for _, c in cells}
+    return (
+        len(cells) == len(rows) * len(cols)
+        and max(rows) - min(rows) + 1 == len(rows)
+        and (max(cols) - min(cols) + 1 == len(cols))
+    )
+
+
+GRID_CASES = [
+    # (design lines, grid rows, grid cols, walk)
+    ('type = "rcbd"\nblocks = 3\ntreatments = ["a", "b", "c", "d"]', 2, 6, "rows"),
+    ('type = "rcbd"\nblocks = 4\ntreatments = ["a", "b", "c", "d", "e", "f", "g", "h"]', 4, 9, "rows"),
+    ('type = "rcbd"\nblocks = 4\ntreatments = ["a", "b", "c", "d", "e", "f", "g", "h"]', 4, 8, "serpentine"),
+    ('type = "rcbd"\nblocks = 6\ntreatments = ["a", "b", "c", "d"]', 6, 4, "serpentine"),
+    ('type = "rcbd"\nblocks = 4\ntreatments = ["a", "b", "c", "d", "e", "f"]', 6, 4, "serpentine"),
+]
+
+
+class TestGridRectangles:
+    @pytest.mark.parametrize(("design", "rows", "cols", "walk"), GRID_CASES)
+    @pytest.mark.parametrize("seed", SEEDS[:5])
+    def test_blocks_are_rectangles_walked_whole(self, design: str, rows: int, cols: int, walk: str, seed: int) -> None:
+        """Every block occupies a rectangle of the grid and is walked completely before the next."""
+        plan = make_plan(spec_from(design, extra=f'[layout]\nrows = {rows}\ncols = {cols}\nwalk = "{walk}"'), seed)
+        for b in {u.block for u in plan.units}:
+            assert _is_rectangle({(u.row, u.col) for u in plan.units if u.block == b}), b
+        walked = [u.block for u in sorted(plan.units, key=lambda u: u.walk)]
+        assert walked == sorted(walked)
+        assert len({(u.row, u.col) for u in plan.units}) == len(plan.units)
+
+    @pytest.mark.parametrize("seed", SEEDS[:10])
+    @pytest.mark.parametrize(("rows", "cols"), [(4, 12), (8, 6), (6, 8)])
+    def test_whole_plots_are_rectangles_inside_their_block(self, seed: int, rows: int, cols: int) -> None:
+        """Split-plot: every whole plot and every block is a rectangle; whole plots are walked whole."""
+        extra = SPLIT + f"[layout]\nrows = {rows}\ncols = {cols}"
+        plan = make_plan(spec_from('type = "split-plot"\nblocks = 4', extra=extra), seed)
+        for key in ("block", "whole_plot"):
+            for g in {getattr(u, key) for u in plan.units}:
+                assert _is_rectangle({(u.row, u.col) for u in plan.units if getattr(u, key) == g})
+        walked = [u.whole_plot for u in sorted(plan.units, key=lambda u: u.walk)]
+        assert walked == sorted(walked)
+
+    def test_a_grid_that_would_wrap_a_block_is_refused_with_shapes_that_work(self) -> None:
+        """3 blocks of 5 on a 2 × 8 grid cannot be rectangles; the message names grids that can."""
+        with pytest.raises(SpecError) as caught:
+            spec_from(
+                'type = "rcbd"\nblocks = 3\ntreatments = ["a", "b", "c", "d", "e"]',
+                extra="[layout]\nrows = 2\ncols = 8",
+            )
+        (problem,) = caught.value.problems
+        assert problem.where == "layout" and "rows = 3, cols = 5" in problem.message
 
 
 class TestLatinSquare:
@@ -100,6 +158,20 @@ class TestLatinSquare:
             for u in plan.units:
                 groups[getattr(u, key)].add(u.treatment)
             assert len(groups) == t and all(len(g) == t for g in groups.values())
+
+    def test_uniform_over_all_576_squares_of_order_4(self) -> None:
+        """20,000 squares of order 4 reach all 576 Latin squares, equally often.
+
+        576 is the number of Latin squares of order 4 (4!·3!·4 reduced squares; OEIS A002860).
+        A cyclic square permuted by rows, columns and symbols reaches only 432 of them, so
+        all 576 shows the draw is not from one class. Pearson chi-square with 575 df; fails
+        when p < 0.001.
+        """
+        stream = Stream(20261202)
+        counts = Counter(tuple(tuple(row) for row in random_latin_square(4, stream)) for _ in range(20_000))
+        assert len(counts) == 576
+        result = stats.chisquare(list(counts.values()))
+        assert result.pvalue > 0.001, result
 
     def test_squares_vary(self) -> None:
         """Different seeds give many different squares of 4."""
@@ -177,3 +249,23 @@ class TestCollectionOrder:
             2,
         )
         assert all(r.order == tuple(u.code for u in plan.units) for r in plan.rounds)
+
+
+class TestUnequalSubsamples:
+    def test_table_per_treatment(self) -> None:
+        """subsamples as a table gives each unit its treatment's number of slots, padded codes for 10 or more."""
+        spec = spec_from('type = "crd"\nreplicates = 3\ntreatments = ["a", "b"]\nsubsamples = { a = 2, b = 12 }')
+        plan = make_plan(spec, 3)
+        for u in plan.units:
+            assert len(plan.slots_of[u.code]) == {"a": 2, "b": 12}[u.treatment]
+        assert len(plan.slots) == 3 * 2 + 3 * 12
+        assert all(s.code.split("-")[2][:-1].isdigit() and len(s.code.split("-")[2]) == 3 for s in plan.slots)
+
+    def test_table_per_whole_plot_level(self) -> None:
+        """In a split-plot the table may be keyed by the whole-plot factor's levels."""
+        spec = spec_from(
+            'type = "split-plot"\nblocks = 2\nsubsamples = { none = 1, disc = 2, plough = 3 }', extra=SPLIT
+        )
+        plan = make_plan(spec, 5)
+        for u in plan.units:
+            assert len(plan.slots_of[u.code]) == {"none": 1, "disc": 2, "plough": 3}[u.levels["till"]]

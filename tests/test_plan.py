@@ -2,16 +2,17 @@
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import json
+import re
 from pathlib import Path
 
 import pytest
 
-from layout import PlanError, load_plan, load_spec, make_plan
-from layout.codes import is_valid
+from layout import PlanError, load_plan, load_spec, loads_spec, make_plan
+from layout.codes import parse_code
 from layout.errors import OutputExists
-from layout.fieldmap import walk_cells
 
 HERE = Path(__file__).parent
 EXAMPLE = HERE / "specs" / "valid" / "field-irrigation-rcbd.toml"
@@ -38,29 +39,47 @@ class TestContent:
         path = make_plan(load_spec(EXAMPLE)).save(tmp_path / "plan.json")
         data = json.loads(path.read_text())
         assert {"format", "fingerprint", "seed", "rng", "spec", "units", "slots"} <= set(data)
-        assert data["format"] == "layout-plan/1"
-        assert data["rng"]["name"] and data["rng"]["version"] == 1
+        assert data["format"] == "layout-plan/2"
+        assert data["rng"]["name"] and data["rng"]["version"] == 2
+        assert 0 <= data["codes"]["salt"] < 23
         assert all(set(u) == UNIT_KEYS for u in data["units"])
         assert all(set(s) == {"code", "unit", "subsample"} for s in data["slots"])
 
     def test_fingerprint_is_sha256_of_canonical_content(self) -> None:
-        """fingerprint = SHA-256 of the sorted-key, compact UTF-8 JSON of all but fingerprint and tool."""
+        """fingerprint = SHA-256 of the RFC 8785 form of all but fingerprint and tool, recomputed here without
+        the project's code: for ASCII keys, whole numbers and the short decimals of this plan, RFC 8785 (JCS,
+        sections 3.2.2-3.2.3) is sorted keys, no spaces, UTF-8, and numbers as ECMAScript prints them."""
         data = json.loads(make_plan(load_spec(EXAMPLE)).to_json())
         body = {k: v for k, v in data.items() if k not in ("fingerprint", "tool")}
-        canonical = json.dumps(body, sort_keys=True, separators=(",", ":"), ensure_ascii=False).encode()
-        assert data["fingerprint"] == hashlib.sha256(canonical).hexdigest()
+        canonical = json.dumps(body, sort_keys=True, separators=(",", ":"), ensure_ascii=False)
+        canonical = re.sub(r"(?<=[:\[,])(-?\d+)\.0(?=[,\]}])", r"\1", canonical)  # ECMAScript prints 5.0 as 5
+        assert data["fingerprint"] == hashlib.sha256(canonical.encode()).hexdigest()
+
+    def test_floats_are_written_as_rfc8785_writes_them(self, tmp_path: Path) -> None:
+        """Numbers in plan.json are in their canonical form (0.1 stays 0.1, 400.0 is written 400)."""
+        spec = load_spec(EXAMPLE)
+        text = spec.model_dump_json().replace('"max":400', '"max":400.0')
+        data = json.loads(text)
+        data["response"][0]["min"] = 0.1
+        plan = make_plan(loads_spec(json.dumps(data), "spec.json"))
+        written = plan.to_json()
+        assert '"min": 0.1' in written and "400.0" not in written
+        assert load_plan(plan.save(tmp_path / "p.json")).fingerprint == plan.fingerprint
 
     def test_codes_are_valid_and_unique(self) -> None:
         """Every unit and slot code passes its check and none repeats."""
         plan = make_plan(load_spec(EXAMPLE))
         codes = [u.code for u in plan.units] + [s.code for s in plan.slots]
         assert len(set(codes)) == len(codes) == 16 + 64
-        assert all(is_valid(c) for c in codes)
+        parts = [parse_code(c, plan.spec.study.id, (4, 3)) for c in codes]
+        assert all(p is not None and p.passes(plan.salt) for p in parts)
 
-    def test_grid_positions(self) -> None:
-        """Units sit on the grid in walk order."""
+    def test_blocks_are_rows_of_the_grid(self) -> None:
+        """Each block of 4 fills one row of the 4 × 4 grid, walked before the next."""
         plan = make_plan(load_spec(EXAMPLE))
-        assert [(u.row, u.col) for u in plan.units] == walk_cells(4, 4, "serpentine")
+        for b in range(1, 5):
+            assert {u.row for u in plan.units if u.block == b} == {b}
+        assert [u.block for u in plan.units] == sorted(u.block for u in plan.units)
 
     def test_seed_override_and_recorded(self) -> None:
         """A seed argument overrides the spec's and is recorded in the plan's spec."""
@@ -92,7 +111,16 @@ class TestLoad:
         a, b = data["units"][0]["treatment"], data["units"][1]["treatment"]
         data["units"][0]["treatment"], data["units"][1]["treatment"] = b, a
         path.write_text(json.dumps(data))
-        with pytest.raises(PlanError, match="fingerprint does not match"):
+        with pytest.raises(PlanError, match="fingerprint") as caught:
+            load_plan(path)
+        problem = caught.value.problems[0]
+        assert problem.where == "fingerprint" and data["fingerprint"] in problem.message
+
+    def test_old_format_gets_a_plain_message(self, tmp_path: Path) -> None:
+        """A plan of the first format is refused with the versions named."""
+        path = tmp_path / "plan.json"
+        path.write_text('{"format": "layout-plan/1"}')
+        with pytest.raises(PlanError, match="earlier version"):
             load_plan(path)
 
     @pytest.mark.parametrize("text", ["not json", "[]", '{"format": "other/1"}'])
@@ -112,3 +140,31 @@ class TestLoad:
         assert path.read_text() == "precious"
         make_plan(load_spec(EXAMPLE)).save(path, force=True)
         assert load_plan(path)
+
+
+class TestReplacing:
+    def test_a_new_draw_gets_a_new_salt(self) -> None:
+        """Re-made with another seed over an old plan, the codes' salt differs from the old one's."""
+        spec = load_spec(EXAMPLE)
+        old = make_plan(spec)
+        for seed in range(40):
+            new = make_plan(spec, seed=seed, replacing=old)
+            if new.fingerprint != old.fingerprint:
+                assert new.salt != old.salt and new.replaces == {"fingerprint": old.fingerprint, "salt": old.salt}
+
+    def test_the_same_draw_stays_the_same(self) -> None:
+        """Re-made with the same spec and seed, the plan is the same, so printed sheets stay valid."""
+        spec = load_spec(EXAMPLE)
+        old = make_plan(spec)
+        assert make_plan(spec, replacing=old).fingerprint == old.fingerprint
+
+    def test_salt_does_not_change_the_randomization(self) -> None:
+        """Avoiding a salt changes codes only: treatments, blocks and places stay as drawn."""
+        spec = load_spec(EXAMPLE)
+        plain = make_plan(spec, seed=7)
+        old = dataclasses.replace(plain, seed=8)  # another draw whose codes share plain's salt
+        twin = make_plan(spec, seed=7, replacing=old)
+        assert twin.salt != plain.salt
+        assert [(u.treatment, u.block, u.row, u.col) for u in twin.units] == [
+            (u.treatment, u.block, u.row, u.col) for u in plain.units
+        ]

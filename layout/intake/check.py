@@ -11,10 +11,12 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from layout.errors import UnreadableFile
 from layout.intake.columns import map_columns
 from layout.intake.findings import Finding, Kind, Severity, finding
 from layout.intake.merge import merge_entries, missing_slots
-from layout.intake.readers import UnreadableFile, read_returned
+from layout.intake.origin import foreign_file
+from layout.intake.readers import read_returned
 from layout.intake.robust import find_outliers, find_swaps
 from layout.intake.rows import Entry, PlanIndex, Unmatched, check_rows
 from layout.intake.tidy import tidy_table
@@ -59,15 +61,24 @@ def check_returns(
         say(f"reading {name}")
         try:
             table = read_returned(path)
-        except (UnreadableFile, OSError) as exc:
-            found.append(finding(Kind.UNREADABLE_FILE, f"cannot be checked: {exc}", file=name))
+        except UnreadableFile as exc:
+            found.append(finding(Kind.UNREADABLE_FILE, f"cannot be checked: {exc.problems[0].message}", file=name))
+            files.append({"file": name, "status": "unreadable"})
+            continue
+        except OSError as exc:
+            found.append(finding(Kind.UNREADABLE_FILE, f"cannot be checked: {exc.strerror or exc}", file=name))
             files.append({"file": name, "status": "unreadable"})
             continue
         if table.fingerprint and table.fingerprint != plan.fingerprint:
+            whose = (
+                f"another randomization of {table.study}"
+                if table.study == plan.spec.study.id
+                else f"study {table.study or 'unknown'}"
+            )
             found.append(
                 finding(
                     Kind.WRONG_PLAN,
-                    f"made from plan {table.fingerprint[:12]}, not this plan "
+                    f"made from plan {table.fingerprint[:12]} ({whose}), not this plan "
                     f"{plan.fingerprint[:12]}; its rows were not checked",
                     file=name,
                     value=table.fingerprint,
@@ -89,6 +100,11 @@ def check_returns(
                     )
                 )
             files.append({"file": name, "status": "not placed", "rows": len(table.rows)})
+            continue
+        foreign = foreign_file(table, cols, idx)
+        if foreign is not None:
+            found.append(foreign)
+            files.append({"file": name, "status": "wrong-plan", "rows": len(table.rows)})
             continue
         e, u, f = check_rows(table, cols, idx)
         entries += e

@@ -7,15 +7,10 @@ from dataclasses import dataclass, field
 from layout.intake.findings import Finding, Kind, Severity, finding
 from layout.intake.readers import ReturnedTable
 from layout.intake.values import is_blank
+from layout.names import ALIASES, STRUCTURE_COLUMNS, normal
 from layout.plan import Plan
 
-STRUCTURE = ("code", "unit", "block", "row", "col", "subsample", "round", "treatment")
-_ALIASES = {"missing reason": "missing_reason", "reason": "missing_reason", "notes": "note", "column": "col"}
-
-
-def normal(header: object) -> str:
-    """A header as compared: trimmed, lower case, single spaces."""
-    return " ".join(str(header or "").strip().lower().split())
+__all__ = ["Columns", "map_columns", "normal"]
 
 
 @dataclass
@@ -32,7 +27,7 @@ class Columns:
 def _roles(plan: Plan) -> dict[str, tuple[str, str]]:
     """Normalised header → (role, name): structure columns, responses (header or bare name), reason, note."""
     blind = plan.spec.study.blind
-    roles = {s: ("structure", s) for s in STRUCTURE if not (blind and s == "treatment")}
+    roles = {s: ("structure", s) for s in STRUCTURE_COLUMNS if not (blind and s == "treatment")}
     for r in plan.spec.response:
         roles[normal(r.header)] = ("response", r.name)
         roles.setdefault(normal(r.name), ("response", r.name))
@@ -49,7 +44,9 @@ def map_columns(table: ReturnedTable, plan: Plan) -> tuple[Columns, list[Finding
     at = {"file": table.file, "row": table.header_row}
     taken: set[tuple[str, str]] = set()
     for i, header in enumerate(table.headers):
-        role = roles.get(_ALIASES.get(normal(header), normal(header)))
+        key = normal(header)
+        # an alias never takes a column that a declared response owns ("notes" as a response stays a response)
+        role = roles.get(key) or roles.get(ALIASES.get(key, key))
         if role and role not in taken:  # a second column of the same name counts as added
             taken.add(role)
             kind, name = role

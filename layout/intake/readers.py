@@ -17,14 +17,11 @@ from typing import Any, Final
 
 from python_calamine import CalamineWorkbook
 
-from layout.outputs.workbook import HIDDEN_SHEET
+from layout.errors import UnreadableFile
+from layout.meta import HIDDEN_SHEET
 
 MAX_UNPACKED: Final = 512 * 1024 * 1024  # a workbook that unpacks larger than this is refused (zip bombs)
 HEADER_SEARCH_ROWS: Final = 20
-
-
-class UnreadableFile(Exception):
-    """A returned file that cannot be read safely; the message says why."""
 
 
 @dataclass
@@ -36,16 +33,21 @@ class ReturnedTable:
     header_row: int
     rows: list[tuple[int, list[Any]]]
     fingerprint: str | None = None
+    study: str | None = None
     formulas: set[tuple[int, int]] = field(default_factory=set)
     decimal_comma: bool = False
     sheet: str | None = None
+
+
+def _unreadable(p: Path, message: str) -> UnreadableFile:
+    return UnreadableFile.at(str(p), "", message)
 
 
 def read_returned(path: str | Path) -> ReturnedTable:
     """Read an .xlsx or .csv return; UnreadableFile when that cannot be done safely."""
     p = Path(path)
     if not p.is_file():
-        raise UnreadableFile("no such file" if not p.exists() else "not a file")
+        raise _unreadable(p, "no such file" if not p.exists() else "not a file")
     suffix = p.suffix.lower()
     if suffix in (".xlsx", ".xlsm"):
         return _read_xlsx(p)
@@ -53,7 +55,7 @@ def read_returned(path: str | Path) -> ReturnedTable:
         return _read_book(p, formulas=False)
     if suffix in (".csv", ".txt", ".tsv"):
         return _read_csv(p)
-    raise UnreadableFile(f"not a workbook or CSV file (ending {suffix or 'none'}); return .xlsx, .ods or .csv files")
+    raise _unreadable(p, f"not a workbook or CSV file (ending {suffix or 'none'}); return .xlsx, .ods or .csv files")
 
 
 def _header_at(rows: list[list[Any]]) -> int:
@@ -79,13 +81,13 @@ def _read_xlsx(p: Path) -> ReturnedTable:
     try:
         with zipfile.ZipFile(p) as z:
             if sum(i.file_size for i in z.infolist()) > MAX_UNPACKED:
-                raise UnreadableFile("unpacks to more than 512 MB; refused as unsafe")
+                raise _unreadable(p, "unpacks to more than 512 MB; refused as unsafe")
             sheets_with_formulas = any(
                 n.startswith("xl/worksheets/") and (b"<f>" in (data := z.read(n)) or b"<f " in data)
                 for n in z.namelist()
             )
     except zipfile.BadZipFile:
-        raise UnreadableFile("not a valid .xlsx workbook (the file is damaged or of another format)") from None
+        raise _unreadable(p, "not a valid .xlsx workbook (the file is damaged or of another format)") from None
     return _read_book(p, formulas=sheets_with_formulas)
 
 
@@ -98,16 +100,18 @@ def _read_book(p: Path, formulas: bool) -> ReturnedTable:
         visible = [m.name for m in book.sheets_metadata if str(m.visible).lower().endswith("visible")]
         name = name or (visible[0] if visible else names[0])
         rows = book.get_sheet_by_name(name).to_python(skip_empty_area=False)
-        fingerprint = None
+        fingerprint = study = None
         if HIDDEN_SHEET in names:
             for row in book.get_sheet_by_name(HIDDEN_SHEET).to_python(skip_empty_area=False)[:5]:
                 if len(row) >= 2 and row[0] == "fingerprint":
                     fingerprint = str(row[1])
+                if len(row) >= 2 and row[0] == "study":
+                    study = str(row[1])
     except UnreadableFile:
         raise
     except Exception as exc:  # calamine raises its own error types for damaged files
-        raise UnreadableFile(f"cannot be read as a workbook ({type(exc).__name__}: {exc})") from None
-    table = _table(str(p), [list(r) for r in rows], fingerprint=fingerprint, sheet=name)
+        raise _unreadable(p, f"cannot be read as a workbook ({type(exc).__name__}: {exc})") from None
+    table = _table(str(p), [list(r) for r in rows], fingerprint=fingerprint, study=study, sheet=name)
     if formulas:
         try:
             table.formulas = _formula_cells(p, name)
@@ -137,9 +141,9 @@ def _read_csv(p: Path) -> ReturnedTable:
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
-        raise UnreadableFile(f"is not UTF-8 text (byte {exc.start}); save it as 'CSV UTF-8'") from None
+        raise _unreadable(p, f"is not UTF-8 text (byte {exc.start}); save it as 'CSV UTF-8'") from None
     if "\x00" in text:
-        raise UnreadableFile("holds NUL characters: not a text CSV file")
+        raise _unreadable(p, "holds NUL characters: not a text CSV file")
     first = next((line for line in text.splitlines() if line.strip()), "")
     delimiter = max([",", ";", "\t"], key=first.count) if first else ","
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
@@ -150,7 +154,7 @@ def _read_csv(p: Path) -> ReturnedTable:
             rows.append(row)
             numbers.append(reader.line_num)
     except csv.Error as exc:
-        raise UnreadableFile(f"is not valid CSV near line {reader.line_num}: {exc}") from None
+        raise _unreadable(p, f"is not valid CSV near line {reader.line_num}: {exc}") from None
     table = _table(str(p), rows, decimal_comma=delimiter == ";")
     # csv line numbers, not row indexes, so a quoted line break does not shift the row numbers
     offset = table.header_row

@@ -6,11 +6,11 @@ import json
 from pathlib import Path
 from typing import Any, Final
 
-from layout import __version__
 from layout.files import refuse_existing, write_new
 from layout.intake.check import CheckResult
-from layout.outputs.printable import BLOCK_COLOURS, map_cells, stylesheet, template_env
+from layout.meta import __version__
 from layout.plan import Plan
+from layout.render import BLOCK_COLOURS, map_cells, stylesheet, template_env
 
 STATUS_COLOURS: Final = {
     "ok": "#cfe8d6",

@@ -5,7 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
-from layout.codes import compact, index_codes, is_valid, suggest
+from layout.codes import CodeParts, compact, index_codes, parse_code, serial_width, subsample_width, suggest
 from layout.intake.columns import Columns
 from layout.intake.findings import Finding, Kind, Severity, finding, show_value
 from layout.intake.readers import ReturnedTable
@@ -50,6 +50,13 @@ class PlanIndex:
         self.units = index_codes(u.code for u in plan.units)
         self.rounds = {r.name.lower(): r.name for r in plan.rounds}
         self.by_unit_sub = {(s.unit, s.subsample): s for s in plan.slots}
+        self.study = plan.spec.study.id
+        width = serial_width(len(plan.units))
+        self.lengths = (width + subsample_width(plan.spec.design.most_subsamples), width)
+
+    def parse(self, text: str) -> CodeParts | None:
+        """A typed code taken apart with this plan's study id and widths."""
+        return parse_code(text, self.study, self.lengths)
 
 
 def _text(cell: Any) -> str:
@@ -162,21 +169,38 @@ def _place(
 
 
 def _code_finding(code_text: str, idx: PlanIndex, at: dict[str, Any]) -> Finding:
-    """unknown-code for a valid code that is not a slot of the plan, bad-code (with suggestions) otherwise."""
-    if is_valid(code_text):
-        what = (
-            "is a unit code; each row needs its subsample slot's code"
-            if compact(code_text) in idx.units
-            else "passes its check but is not a slot of this plan (another study's sheet?)"
-        )
+    """unknown-code for a code that passes its check but is no slot of the plan; bad-code (with suggestions) otherwise."""
+    where = {"column": "code", "value": code_text, "code": code_text, **at}
+    if compact(code_text) in idx.units:
         return finding(
-            Kind.UNKNOWN_CODE, f"code {code_text!r} {what}", column="code", value=code_text, code=code_text, **at
+            Kind.UNKNOWN_CODE, f"code {code_text!r} is a unit code; each row needs its subsample slot's code", **where
+        )
+    parts = idx.parse(code_text)
+    salt = idx.plan.salt
+    if parts is not None and parts.study != idx.study:
+        meant = idx.slots.get(compact(idx.study + parts.digits + parts.letter))
+        if meant is not None:
+            return finding(
+                Kind.BAD_CODE,
+                f"code {code_text!r} has study id {parts.study!r}, but this plan's is {idx.study!r}; did you mean {meant}?",
+                suggestion=meant,
+                **where,
+            )
+    elif parts is not None and parts.passes(salt):
+        return finding(
+            Kind.UNKNOWN_CODE,
+            f"code {code_text!r} passes its check but is not a slot of this plan (a unit or subsample it does not have?)",
+            **where,
         )
     near = suggest(code_text, idx.slots)
     hint = " or ".join(near) if near else None
-    msg = f"code {code_text!r} fails its check character (a typing or reading error)"
+    msg = (
+        f"code {code_text!r} fails its check letter (a typing or reading error)"
+        if parts is not None
+        else f"{code_text!r} is not a code of this plan's form ({idx.plan.slots[0].code})"
+    )
     msg += f"; did you mean {hint}?" if hint else "; no planned code is one edit away"
-    return finding(Kind.BAD_CODE, msg, column="code", value=code_text, code=code_text, suggestion=hint, **at)
+    return finding(Kind.BAD_CODE, msg, suggestion=hint, **where)
 
 
 def _read_values(

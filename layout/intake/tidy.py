@@ -7,6 +7,7 @@ from typing import Any
 import pandas as pd
 
 from layout.intake.rows import Entry, Unmatched
+from layout.names import ADDED_PREFIX
 from layout.plan import Plan
 
 
@@ -22,10 +23,9 @@ def tidy_table(
     factors = factor_columns(plan)
     responses = [r.name for r in plan.spec.response]
     extras = sorted({k for e in kept.values() for k in e.extras})
+    added = {x: ADDED_PREFIX + x for x in extras}  # a prefix, so an added column never overwrites a plan column
     records: list[dict[str, Any]] = []
-    slots_of: dict[str, list] = {}
-    for s in plan.slots:
-        slots_of.setdefault(s.unit, []).append(s)
+    slots_of = plan.slots_of
     for rnd in plan.rounds:
         for u in plan.units:
             for s in slots_of[u.code]:
@@ -45,7 +45,7 @@ def tidy_table(
                 rec.update({r: (e.values.get(r) if e else None) for r in responses})
                 rec["missing_reason"] = e.reason if e else None
                 rec["note"] = e.note if e else None
-                rec.update({x: (e.extras.get(x) if e else None) for x in extras})
+                rec.update({added[x]: (e.extras.get(x) if e else None) for x in extras})
                 rec["status"] = _status(e, (s.code, rnd.name) in conflicts)
                 rec["source_file"] = e.file if e else None
                 rec["source_row"] = e.row if e else None
@@ -74,7 +74,7 @@ def tidy_table(
         *responses,
         "missing_reason",
         "note",
-        *extras,
+        *added.values(),
         "status",
         "source_file",
         "source_row",

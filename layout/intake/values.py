@@ -73,9 +73,7 @@ def parse(cell: Any, r: Response, decimal_comma: bool = False) -> Parsed:
 
 
 def _expect(r: Response) -> str:
-    from layout.outputs.entry_table import allowed_text
-
-    return allowed_text(r)
+    return r.allowed_text
 
 
 def _date(cell: Any) -> date | None:

@@ -8,11 +8,12 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Final
 
+from layout.names import STRUCTURE_COLUMNS, TRAILING_COLUMNS
 from layout.plan import Plan, Unit
 from layout.spec import Response
 
-STRUCTURE: Final = ("code", "unit", "block", "row", "col", "subsample", "round")
-TRAILING: Final = ("missing_reason", "note")
+STRUCTURE: Final = tuple(c for c in STRUCTURE_COLUMNS if c != "treatment")
+TRAILING: Final = TRAILING_COLUMNS
 
 
 @dataclass(frozen=True)
@@ -40,14 +41,11 @@ def headers(plan: Plan) -> list[str]:
 
 def entry_rows(plan: Plan) -> list[EntryRow]:
     """Every slot in every round, rounds in spec order, units in the round's order."""
-    slots_of: dict[str, list[tuple[str, int]]] = {}
-    for s in plan.slots:
-        slots_of.setdefault(s.unit, []).append((s.code, s.subsample))
     rows: list[EntryRow] = []
     for rnd in plan.rounds:
         for code in rnd.order:
             unit = plan.unit_by_code[code]
-            rows += [EntryRow(slot, unit, sub, rnd.name) for slot, sub in slots_of[code]]
+            rows += [EntryRow(s.code, unit, s.subsample, rnd.name) for s in plan.slots_of[code]]
     return rows
 
 
@@ -61,25 +59,5 @@ def structure_values(plan: Plan, row: EntryRow) -> list[object]:
 
 
 def allowed_text(r: Response) -> str:
-    """What a response accepts, in words, for input messages and sheet headers."""
-    if r.kind in ("number", "integer"):
-        unit = f" {r.unit}" if r.unit else ""
-        if r.min is not None and r.max is not None:
-            rng = f"{r.min:g} to {r.max:g}{unit}"
-        elif r.min is not None:
-            rng = f"at least {r.min:g}{unit}"
-        elif r.max is not None:
-            rng = f"at most {r.max:g}{unit}"
-        else:
-            rng = f"any value{unit}"
-        if r.kind == "integer":
-            return f"whole number, {rng}"
-        if r.decimals is None:
-            return f"number, {rng}"
-        places = "no decimals" if r.decimals == 0 else f"{r.decimals} decimal{'s' if r.decimals > 1 else ''}"
-        return f"number, {rng}, {places}"
-    if r.kind == "category":
-        return "one of: " + ", ".join(r.levels or ())
-    if r.kind == "date":
-        return "date, YYYY-MM-DD"
-    return "free text"
+    """What a response accepts, in words (kept here for the outputs that import it)."""
+    return r.allowed_text

@@ -7,34 +7,17 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass, field
-from functools import cache
-from importlib import resources
 from typing import Any, Final
 
-from jinja2 import Environment, FileSystemLoader, select_autoescape
 from markupsafe import Markup
 
-from layout import __version__
+from layout.meta import __version__
 from layout.outputs.entry_table import EntryRow, allowed_text, entry_rows
 from layout.outputs.labels import PAD_MM, LabelGeometry
 from layout.outputs.qr import qr_svg
 from layout.plan import Plan, Unit
+from layout.render import BLOCK_COLOURS, TREATMENT_COLOURS, map_cells, stylesheet, template_env
 
-BLOCK_COLOURS: Final = ("#d8eedf", "#fbe4c0", "#d6e3f5", "#f5d7e1", "#e4ddf3", "#f0edc4", "#d2ecec", "#ecdcd0")
-TREATMENT_COLOURS: Final = (
-    "#1b7f5a",
-    "#c2571a",
-    "#3559a8",
-    "#a02c5f",
-    "#6b4aa8",
-    "#8a7a12",
-    "#1d8a8a",
-    "#7a4a2a",
-    "#4f6b1f",
-    "#b03a2e",
-    "#2c6e91",
-    "#875b9e",
-)
 _SHEET_ROWS: Final = {
     ("a4", "portrait"): 24,
     ("a4", "landscape"): 15,
@@ -43,24 +26,6 @@ _SHEET_ROWS: Final = {
 }
 
 Tick = Callable[[], None]
-
-
-@cache
-def template_env() -> Environment:
-    """The jinja2 environment over the packaged templates, autoescaping HTML."""
-    folder = str(resources.files("layout.templates"))
-    return Environment(
-        loader=FileSystemLoader(folder),
-        autoescape=select_autoescape(["html"]),
-        trim_blocks=True,
-        lstrip_blocks=True,
-        keep_trailing_newline=True,
-    )
-
-
-def stylesheet(name: str) -> Markup:
-    """A packaged CSS file, marked safe for a <style> element."""
-    return Markup(resources.files("layout.templates").joinpath(name).read_text(encoding="utf-8"))
 
 
 def _common(plan: Plan) -> dict[str, Any]:
@@ -154,15 +119,19 @@ def render_labels(plan: Plan, geometry: LabelGeometry, units: bool = False, tick
             if tick:
                 tick()
     else:
-        for s in plan.slots:
-            u = plan.unit_by_code[s.unit]
-            lines = [f"{d.subsample_name} {s.subsample} of {d.subsamples}", f"{d.unit_name} {u.code}", position_text(u)]
-            lines += [] if blind else [u.treatment]
-            items.append(
-                {"code": s.code, "qr": Markup(qr_svg(s.code, geometry.qr_size)), "lines": [x for x in lines if x]}
-            )
-            if tick:
-                tick()
+        # destructive sampling takes a new sample each round: one label per slot and round
+        rounds = [r.name for r in plan.rounds] if plan.spec.collection.labels_per_round else [None]
+        for rnd in rounds:
+            for s in plan.slots:
+                u = plan.unit_by_code[s.unit]
+                of = len(plan.slots_of[u.code])
+                lines = [f"{d.subsample_name} {s.subsample} of {of}", f"{d.unit_name} {u.code}", position_text(u)]
+                lines = ([f"round {rnd}"] if rnd is not None else []) + lines + ([] if blind else [u.treatment])
+                items.append(
+                    {"code": s.code, "qr": Markup(qr_svg(s.code, geometry.qr_size)), "lines": [x for x in lines if x]}
+                )
+                if tick:
+                    tick()
     page_w, page_h = geometry.page_size
     text_w = geometry.width - geometry.qr_size - 3 * PAD_MM
     font = round(min(3.4, geometry.height * 0.115, text_w / 7.5), 2)
@@ -181,23 +150,6 @@ def render_labels(plan: Plan, geometry: LabelGeometry, units: bool = False, tick
             kind="unit" if units else "slot",
         )
     )
-
-
-def map_cells(plan: Plan) -> tuple[list[list[Unit | None]], bool]:
-    """Rows of cells (None for an empty cell), and whether they are a real grid."""
-    grid = plan.spec.layout
-    if any(u.row is not None for u in plan.units):
-        rows = max(u.row or 0 for u in plan.units) if grid is None else grid.rows
-        cols = max(u.col or 0 for u in plan.units) if grid is None else grid.cols
-        cells: list[list[Unit | None]] = [[None] * cols for _ in range(rows)]
-        for u in plan.units:
-            cells[(u.row or 1) - 1][(u.col or 1) - 1] = u
-        return cells, True
-    width = max(len(plan.spec.treatments), 5)
-    if width > 10:
-        width = 10
-    units: list[Unit | None] = list(plan.units)
-    return [units[i : i + width] for i in range(0, len(units), width)], False
 
 
 def render_map(plan: Plan, show_treatments: bool) -> str:

@@ -21,13 +21,11 @@ from openpyxl.utils import get_column_letter
 from openpyxl.worksheet._write_only import WriteOnlyWorksheet
 from openpyxl.worksheet.datavalidation import DataValidation
 
-from layout import __version__
+from layout.meta import ENTRY_FORMAT, HIDDEN_SHEET, __version__
 from layout.outputs.entry_table import TRAILING, allowed_text, entry_rows, headers, structure_columns, structure_values
 from layout.plan import Plan
 from layout.spec import Response
 
-HIDDEN_SHEET: Final = "layout_plan"
-ENTRY_FORMAT: Final = "layout-entry/1"
 _FIXED_TIME: Final = datetime(2000, 1, 1)  # fixed so the same plan gives the same bytes
 _SHADE: Final = PatternFill("solid", fgColor="E8ECEF")
 _BOLD: Final = Font(bold=True)
@@ -137,7 +135,7 @@ def _units_sheet(wb: Workbook, plan: Plan) -> None:
     ws.freeze_panes = "A2"
     ws.append([_cell(ws, h, bold=True) for h in head])
     for u in plan.units:
-        values = [u.code, u.serial, u.block, u.row, u.col, u.whole_plot, plan.spec.design.subsamples]
+        values = [u.code, u.serial, u.block, u.row, u.col, u.whole_plot, len(plan.slots_of[u.code])]
         ws.append(values + ([] if blind else [u.treatment]))
 
 
@@ -148,15 +146,21 @@ def _about_sheet(wb: Workbook, plan: Plan) -> None:
     spec = plan.spec
     d = spec.design
     wrap = Alignment(wrap_text=True, vertical="top")
+    # blind: no seed and no treatment count, from which the grouping of units could be rebuilt
+    design = (
+        f"{len(plan.units)} {d.unit_name}s, {len(plan.slots)} {d.subsample_name} slots"
+        if spec.study.blind
+        else f"{d.type}, {len(spec.treatments)} treatments, {len(plan.units)} {d.unit_name}s, "
+        f"{len(plan.slots)} {d.subsample_name} slots"
+    )
     lines: list[tuple[str, object]] = [
         ("study", f"{spec.study.id}: {spec.study.title}"),
-        (
-            "design",
-            f"{d.type}, {len(spec.treatments)} treatments, {len(plan.units)} {d.unit_name}s, "
-            f"{d.subsamples} {d.subsample_name}s each",
-        ),
+        ("design", design),
         ("rounds", ", ".join(r.name for r in plan.rounds)),
-        ("seed", plan.seed),
+    ]
+    if not spec.study.blind:
+        lines.append(("seed", plan.seed))
+    lines += [
         ("plan fingerprint", plan.fingerprint),
         ("made by", f"layout {__version__}"),
         ("", ""),

@@ -339,8 +339,11 @@ def _blank_code_row(row: list[Any]) -> list[Any]:
     return [None, *row[1:]]
 
 
+FOREIGN = slot_code("ZZ9", 999, 3, 1, 1, 0)  # another study's code, of a serial this plan does not have
+
+
 def _foreign_code(row: list[Any]) -> list[Any]:
-    return [slot_code("ZZ9", 3, 3, 1, 3), *row[1:]]
+    return [FOREIGN, *row[1:]]
 
 
 def _changed_value(row: list[Any]) -> list[Any]:
@@ -374,7 +377,7 @@ FAULTS: list[tuple[str, Callable[[Plan, dict], Edit], str, Callable[[Plan, dict]
     # (name, edit maker, expected kind, expected code)
     ("blank-code", _append_copy(_blank_code_row), "blank-code", lambda p, v: None),
     ("bad-code", _append_copy(_typo), "bad-code", lambda p, v: _typo([first_good(p, v)])[0]),
-    ("unknown-code", _append_copy(_foreign_code), "unknown-code", lambda p, v: slot_code("ZZ9", 3, 3, 1, 3)),
+    ("unknown-code", _append_copy(_foreign_code), "unknown-code", lambda p, v: FOREIGN),
     ("duplicate-slot", _append_copy(lambda r: r), "duplicate-slot", first_good),
     ("conflicting-slot", _append_copy(_changed_value), "conflicting-slot", first_good),
     ("unit-mismatch", _unit_mismatch, "unit-mismatch", first_good),
@@ -516,7 +519,7 @@ class TestNothingLost:
         assert errors(result) == set()
         assert any(f.kind is Kind.EXTRA_COLUMN for f in result.findings)
         tidy = result.tidy.set_index(["code", "round"])
-        extra = [c for c in tidy.columns if c.startswith("column ")]
+        extra = [c for c in tidy.columns if c.startswith("added: column ")]
         assert [tidy.loc[(code, "r1"), c] for c in extra] == ["pot cracked"]
 
     def test_unplaced_rows_keep_their_cells(self, plan: Plan, filled: Path, tmp_path: Path) -> None:

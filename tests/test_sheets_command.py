@@ -98,7 +98,7 @@ class TestBadOptions:
         """An edited plan is refused before anything is made."""
         plan_file.write_text(plan_file.read_text().replace('"treatment": "0"', '"treatment": "8"', 1))
         assert main(["sheets", str(plan_file), "-o", str(plan_file.parent / "x")]) == 2
-        assert "fingerprint does not match" in capsys.readouterr().err
+        assert "the plan was edited" in capsys.readouterr().err
 
 
 class TestLetterPaper:

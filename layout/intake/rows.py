@@ -186,6 +186,12 @@ def _code_finding(code_text: str, idx: PlanIndex, at: dict[str, Any]) -> Finding
                 suggestion=meant,
                 **where,
             )
+        return finding(
+            Kind.UNKNOWN_CODE,
+            f"code {code_text!r} is of study {parts.study}, not this plan's {idx.study} (another study's sheet?)",
+            suggestion=" or ".join(suggest(code_text, idx.slots)) or None,
+            **where,
+        )
     elif parts is not None and parts.passes(salt):
         return finding(
             Kind.UNKNOWN_CODE,

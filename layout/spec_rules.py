@@ -238,7 +238,7 @@ def _size(spec: Spec) -> Rule:
             if len(sizes) > 1:
                 what += f", each in whole plots of {sizes[1]}"
             shapes = workable_grids(n, groups, sizes, (grid.rows, grid.cols))
-            hint = ", ".join(f"rows = {r}, cols = {c}" for r, c in shapes)
+            hint = "; ".join(f"rows = {r} and cols = {c}" for r, c in shapes)
             yield (
                 "layout",
                 f"a {grid.rows} × {grid.cols} grid cannot hold {what} as rectangles, so a block would wrap "

@@ -142,7 +142,7 @@ class TestGridRectangles:
                 extra="[layout]\nrows = 2\ncols = 8",
             )
         (problem,) = caught.value.problems
-        assert problem.where == "layout" and "rows = 3, cols = 5" in problem.message
+        assert problem.where == "layout" and "rows = 3 and cols = 5" in problem.message
 
 
 class TestLatinSquare:

@@ -191,3 +191,32 @@ class TestInBrowser:
                 timeout=120,
             ).stdout
         assert 'data-overflow="none"' in dom, re.findall(r'data-overflow="[^"]*"', dom)
+
+
+class TestUnequalSubsamples:
+    """A table of subsamples per treatment and a label per round, carried through sheets, labels and check."""
+
+    def test_labels_rows_and_check(self, tmp_path: Path) -> None:
+        """Each unit gets its own number of slots on labels (one per round) and in the workbook; check expects them."""
+        from layout import load_spec, make_plan
+        from layout.intake.check import check_returns
+        from layout.intake.findings import Kind
+        from layout.outputs.labels import LabelGeometry
+        from layout.outputs.printable import render_labels
+        from layout.outputs.workbook import workbook_bytes
+
+        plan = make_plan(load_spec(Path(__file__).parent / "specs" / "valid" / "grain-unequal-subsamples.toml"))
+        per = {"no liner": 2, "foil liner": 3, "woven liner": 3}
+        assert {len(plan.slots_of[u.code]) for u in plan.units if u.treatment == "no liner"} == {2}
+        assert len(plan.slots) == 3 * sum(per.values())
+        html = render_labels(plan, LabelGeometry())
+        assert html.count('class="label"') == len(plan.slots) * 2
+        for u in plan.units:
+            assert f"probe {per[u.treatment]} of {per[u.treatment]}" in html
+        assert "round week2" in html and "round week6" in html
+        path = tmp_path / "entry.xlsx"
+        path.write_bytes(workbook_bytes(plan))
+        result = check_returns(plan, [path])
+        kinds = {f.kind for f in result.findings}
+        assert kinds == {Kind.MISSING_VALUE}
+        assert sum(f.kind is Kind.MISSING_VALUE for f in result.findings) == len(plan.slots) * 2

@@ -34,9 +34,14 @@ TREATMENT_COLOURS: Final = (
 
 
 def printed_code(code: str) -> Markup:
-    """A code for paper: the check letter set apart by a margin (never a character), so copied text stays the code."""
+    """A code for paper: zeros dotted, the check letter set apart by a margin (never a character).
+
+    The dot is drawn by CSS over the digit (print.css, .zero), so it shows in any font and the
+    page's text, when copied, is still the code.
+    """
     body, letter = split_check(code)
-    return Markup(f'<span class="code-text">{escape(body)}<span class="check">{escape(letter)}</span></span>')
+    shown = str(escape(body)).replace("0", '<span class="zero">0</span>')
+    return Markup(f'<span class="code-text">{shown}<span class="check">{escape(letter)}</span></span>')
 
 
 @cache

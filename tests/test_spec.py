@@ -74,3 +74,13 @@ class TestDefaults:
         with pytest.raises(SpecError) as info:
             load_spec(tmp_path / "nope.toml")
         assert info.value.lines() == [f"{tmp_path / 'nope.toml'}: no such file"]
+
+
+def test_reference_names_every_key() -> None:
+    """docs/spec.md lists every key the spec models accept."""
+    from layout.spec import Collection, Design, Factor, Grid, Response, Study
+
+    text = (Path(__file__).parent.parent / "docs" / "spec.md").read_text(encoding="utf-8")
+    for model in (Study, Design, Factor, Grid, Response, Collection):
+        for key in model.model_fields:
+            assert f"`{key}`" in text, (model.__name__, key)

@@ -54,7 +54,7 @@ max = 40
 [[response]]
 name = "condition"
 kind = "category"
-levels = ["healthy", "wilted", "damaged"]
+levels = ["healthy", "wilted", "chewed"]
 
 [collection]
 rounds = ["day14", "day28"]

@@ -180,3 +180,15 @@ class TestBlinding:
         main(["check", str(tmp_path / "plan.json"), str(tmp_path / "entry.xlsx")])
         out = capsys.readouterr().out
         assert "blind" in out and "tidy.csv" in out
+
+
+class TestMistypedStudyId:
+    def test_plan_id_suggested(self, old: tuple[Path, dict[str, Path]], tmp_path: Path) -> None:
+        """A code typed with a wrong study id is a bad code whose suggestion carries the plan's id."""
+        folder, _ = old
+        plan = load_plan(folder / "plan.json")
+        code, _, value = next(flatworm_fill(plan))
+        path = tmp_path / "one.csv"
+        path.write_text(f"code,density\n{code.replace('FW1', 'FV1')},{value}\n", encoding="utf-8")
+        bad = [f for f in check_returns(plan, [path]).findings if f.kind is Kind.BAD_CODE]
+        assert len(bad) == 1 and bad[0].suggestion == code

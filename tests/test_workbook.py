@@ -97,9 +97,9 @@ class TestProtectionAndValidation:
         path.write_bytes(workbook_bytes(crd_plan))
         ws = openpyxl.load_workbook(path)["entry"]
         types = {dv.type: dv for dv in ws.data_validations.dataValidation}
-        assert types["list"].formula1 in ('"healthy,wilted,damaged"', '"not measured,lost,damaged,other"')
+        assert types["list"].formula1 in ('"healthy,wilted,chewed"', '"not measured,lost,damaged,other"')
         lists = sorted(dv.formula1 for dv in ws.data_validations.dataValidation if dv.type == "list")
-        assert lists == sorted(['"not measured,lost,damaged,other"', '"healthy,wilted,damaged"'])
+        assert lists == sorted(['"not measured,lost,damaged,other"', '"healthy,wilted,chewed"'])
 
     def test_locked_structure_open_inputs(self, entry: Path, rcbd_plan: Plan) -> None:
         """Structure cells are locked, input cells unlocked, the sheet protected without a password."""

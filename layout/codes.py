@@ -134,20 +134,20 @@ def parse_code(text: str, study: str, lengths: Iterable[int]) -> CodeParts | Non
 
 
 def near_misses(text: str) -> Iterator[str]:
-    """Every compact string one changed, inserted or dropped character or one neighbour swap from text."""
+    """Every compact string one edit from text, likelier slips first: neighbour swaps, changed, dropped, inserted characters."""
     body = compact(text)
+    for i in range(len(body) - 1):
+        if body[i] != body[i + 1]:
+            yield body[:i] + body[i + 1] + body[i] + body[i + 2 :]
     for i, old in enumerate(body):
         for c in _TYPED:
             if c != old:
                 yield body[:i] + c + body[i + 1 :]
+    for i in range(len(body)):
+        yield body[:i] + body[i + 1 :]
     for i in range(len(body) + 1):
         for c in _TYPED:
             yield body[:i] + c + body[i:]
-    for i in range(len(body)):
-        yield body[:i] + body[i + 1 :]
-    for i in range(len(body) - 1):
-        if body[i] != body[i + 1]:
-            yield body[:i] + body[i + 1] + body[i] + body[i + 2 :]
 
 
 def index_codes(codes: Iterable[str]) -> dict[str, str]:
@@ -156,7 +156,6 @@ def index_codes(codes: Iterable[str]) -> dict[str, str]:
 
 
 def suggest(text: str, planned: Mapping[str, str] | Iterable[str]) -> list[str]:
-    """The planned codes one edit away from text, in code order."""
+    """The planned codes one edit away from text, the likelier slips first (swaps, then changes, drops, inserts)."""
     index = planned if isinstance(planned, Mapping) else index_codes(planned)
-    found = {index[v] for v in near_misses(text) if v in index}
-    return sorted(found)
+    return list(dict.fromkeys(index[v] for v in near_misses(text) if v in index))

@@ -10,13 +10,15 @@ from __future__ import annotations
 import json
 import re
 import tomllib
+from datetime import date
 from pathlib import Path
-from typing import Any, Final, Literal
+from typing import Annotated, Any, Final, Literal
 
 from pydantic import (
     BaseModel,
     ConfigDict,
     Field,
+    Strict,
     StrictBool,
     StrictFloat,
     StrictInt,
@@ -41,6 +43,7 @@ Int = StrictInt
 Str = StrictStr
 Bool = StrictBool
 Num = StrictFloat | StrictInt
+StrictDate = Annotated[date, Strict()]
 
 
 class _Frozen(BaseModel):
@@ -188,8 +191,8 @@ class Response(_Frozen):
     name: Str
     kind: Literal["number", "integer", "category", "text", "date"]
     unit: Str | None = None
-    min: Num | None = None
-    max: Num | None = None
+    min: Num | StrictDate | None = None
+    max: Num | StrictDate | None = None
     decimals: Int | None = None
     levels: tuple[Str, ...] | None = None
     required: Bool = True
@@ -200,6 +203,17 @@ class Response(_Frozen):
         _label(v)
         if why := clash(v):
             raise ValueError(f"{why}; choose another name")
+        return v
+
+    @field_validator("min", "max", mode="before")
+    @classmethod
+    def _iso_date(cls, v: Any) -> Any:
+        # TOML has dates of its own; JSON writes them as ISO text
+        if isinstance(v, str) and re.fullmatch(r"\d{4}-\d{2}-\d{2}", v):
+            try:
+                return date.fromisoformat(v)
+            except ValueError:
+                return v
         return v
 
     @field_validator("decimals")
@@ -250,6 +264,10 @@ class Response(_Frozen):
         if self.kind == "category":
             return "one of: " + ", ".join(self.levels or ())
         if self.kind == "date":
+            if self.min is not None and self.max is not None:
+                return f"date, YYYY-MM-DD, from {self.min} to {self.max}"
+            if self.min is not None or self.max is not None:
+                return f"date, YYYY-MM-DD, {'from' if self.min is not None else 'up to'} {self.min or self.max}"
             return "date, YYYY-MM-DD"
         return "free text"
 

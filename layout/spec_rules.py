@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from collections.abc import Iterator
+from datetime import date
 from typing import TYPE_CHECKING, Final
 
 from layout.fieldmap import tiling, workable_grids
@@ -191,12 +192,21 @@ def _responses(spec: Spec) -> Rule:
         numeric = r.kind in ("number", "integer")
         for key in ("min", "max"):
             value = getattr(r, key)
-            if value is not None and not numeric:
-                yield f"{at}.{key}", f"only number and integer responses have a {key}, this one is {r.kind}"
-            elif value is not None and r.kind == "integer" and value != int(value):
+            if value is None:
+                continue
+            is_date = isinstance(value, date)
+            if r.kind == "date" and not is_date:
+                yield f"{at}.{key}", f"must be a date such as 2026-06-01 for a date response, got {value}"
+            elif r.kind != "date" and not numeric:
+                yield f"{at}.{key}", f"only number, integer and date responses have a {key}, this one is {r.kind}"
+            elif numeric and is_date:
+                yield f"{at}.{key}", f"must be a number for a {r.kind} response, got the date {value}"
+            elif r.kind == "integer" and value != int(value):
                 yield f"{at}.{key}", f"must be a whole number for an integer response, got {value}"
-        if r.min is not None and r.max is not None and r.min > r.max and numeric:
-            yield f"{at}.min", f"must not be above max ({r.max:g}), got {r.min:g}"
+        same_kind = isinstance(r.min, date) == isinstance(r.max, date)
+        if r.min is not None and r.max is not None and same_kind and r.min > r.max:
+            shown = (lambda v: f"{v:g}") if numeric and not isinstance(r.min, date) else str
+            yield f"{at}.min", f"must not be above max ({shown(r.max)}), got {shown(r.min)}"
         if r.decimals is not None and r.kind != "number":
             yield f"{at}.decimals", f"only number responses have decimals, this one is {r.kind}"
         if r.kind == "category" and r.levels is None:

@@ -384,6 +384,7 @@ FAULTS: list[tuple[str, Callable[[Plan, dict], Edit], str, Callable[[Plan, dict]
     ("not-a-number", _set(first_good, "moisture (%)", "wet"), "not-a-number", first_good),
     ("not-a-whole-number", _set(first_good, "count", 12.5), "not-a-number", first_good),
     ("out-of-range", _set(first_good, "moisture (%)", 75.0), "out-of-range", first_good),
+    ("too-many-decimals", _set(first_good, "moisture (%)", 21.37), "too-many-decimals", first_good),
     ("not-a-level", _set(first_good, "colour", "purple"), "not-a-level", first_good),
     ("bad-reason", _set(first_good, "missing_reason", "eaten"), "not-a-level", first_good),
     ("bad-date", _set(first_good, "sampled", "31/31/2026"), "bad-date", first_good),

@@ -4,21 +4,17 @@ from __future__ import annotations
 
 from collections import Counter
 from collections.abc import Callable, Iterator, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from layout.errors import UnreadableFile
-from layout.intake.columns import map_columns
 from layout.intake.findings import Finding, Kind, Severity, finding
-from layout.intake.merge import merge_entries, missing_slots
-from layout.intake.origin import foreign_file
-from layout.intake.readers import read_returned
+from layout.intake.gather import gather
+from layout.intake.merge import Key, Merged, completeness, merge_entries, missing_slots
 from layout.intake.robust import find_outliers, find_swaps
-from layout.intake.rows import Entry, PlanIndex, Unmatched, check_rows
 from layout.intake.tidy import tidy_table
 from layout.plan import Plan
 
@@ -51,87 +47,38 @@ def check_returns(
     progress, when given, is called with a short description before each step.
     """
     say = progress or (lambda _: None)
-    idx = PlanIndex(plan)
-    found: list[Finding] = []
-    entries: list[Entry] = []
-    unmatched: list[Unmatched] = []
-    files: list[dict[str, Any]] = []
-    for path in paths:
-        name = str(path)
-        say(f"reading {name}")
-        try:
-            table = read_returned(path)
-        except UnreadableFile as exc:
-            found.append(finding(Kind.UNREADABLE_FILE, f"cannot be checked: {exc.problems[0].message}", file=name))
-            files.append({"file": name, "status": "unreadable"})
-            continue
-        except OSError as exc:
-            found.append(finding(Kind.UNREADABLE_FILE, f"cannot be checked: {exc.strerror or exc}", file=name))
-            files.append({"file": name, "status": "unreadable"})
-            continue
-        if table.fingerprint and table.fingerprint != plan.fingerprint:
-            whose = (
-                f"another randomization of {table.study}"
-                if table.study == plan.spec.study.id
-                else f"study {table.study or 'unknown'}"
-            )
-            found.append(
-                finding(
-                    Kind.WRONG_PLAN,
-                    f"made from plan {table.fingerprint[:12]} ({whose}), not this plan "
-                    f"{plan.fingerprint[:12]}; its rows were not checked",
-                    file=name,
-                    value=table.fingerprint,
-                )
-            )
-            files.append({"file": name, "status": "wrong-plan"})
-            continue
-        cols, column_findings = map_columns(table, plan)
-        found += column_findings
-        blocked = any(f.severity is Severity.ERROR and f.column in ("code", "round") for f in column_findings)
-        if blocked or not table.headers:
-            if not table.headers:
-                found.append(
-                    finding(
-                        Kind.MISSING_COLUMN,
-                        "no header row with a 'code' column in the first 20 rows",
-                        file=name,
-                        column="code",
-                    )
-                )
-            files.append({"file": name, "status": "not placed", "rows": len(table.rows)})
-            continue
-        foreign = foreign_file(table, cols, idx)
-        if foreign is not None:
-            found.append(foreign)
-            files.append({"file": name, "status": "wrong-plan", "rows": len(table.rows)})
-            continue
-        e, u, f = check_rows(table, cols, idx)
-        entries += e
-        unmatched += u
-        found += f
-        files.append(
-            {
-                "file": name,
-                "status": "read",
-                "rows": len(e) + len(u),
-                "sheet": table.sheet,
-                "fingerprint": table.fingerprint,
-            }
-        )
+    got = gather(plan, paths, say)
+    found = list(got.findings)
     say("merging and looking for missing slots")
-    kept, conflicts, merge_findings = merge_entries(plan, entries)
+    merged, merge_findings = merge_entries(plan, got.entries)
     found += merge_findings
-    found += missing_slots(plan, kept)
+    found += completeness(plan, merged)
+    cause = "; ".join(got.unusable) or None
+    missing = missing_slots(plan, merged, cause)
+    found = _count_at_causes(found, got.unusable, missing) + missing
     say("looking for outlying subsamples and swapped units")
-    stats, outliers, swaps = _statistical(plan, kept, conflicts)
+    stats, outliers, swaps = _statistical(plan, merged)
     found += stats
-    tidy = tidy_table(plan, kept, conflicts, unmatched)
-    return CheckResult(found, tidy, _summary(plan, found, kept, files), outliers, swaps)
+    tidy = tidy_table(plan, merged, got.unmatched)
+    return CheckResult(found, tidy, _summary(plan, found, merged, got.files), outliers, swaps)
+
+
+def _count_at_causes(found: list[Finding], unusable: list[str], missing: list[Finding]) -> list[Finding]:
+    """Tell at each unusable file how many planned slot-rounds are then in no file, listed under it."""
+    if not unusable or not missing:
+        return found
+    n = len(missing)
+    note = f"; {n} missing slot or unit finding{'s' if n > 1 else ''} follow{'' if n > 1 else 's'} (listed under it)"
+    return [
+        replace(f, message=f.message + note)
+        if f.file in unusable and f.kind in (Kind.UNREADABLE_FILE, Kind.WRONG_PLAN, Kind.MISSING_COLUMN)
+        else f
+        for f in found
+    ]
 
 
 def _statistical(
-    plan: Plan, kept: dict[tuple[str, str], Entry], conflicts: set[tuple[str, str]]
+    plan: Plan, merged: dict[Key, Merged]
 ) -> tuple[list[Finding], set[tuple[str, str, str]], set[tuple[str, str]]]:
     found: list[Finding] = []
     outliers: set[tuple[str, str, str]] = set()
@@ -141,9 +88,9 @@ def _statistical(
     for rnd in plan.rounds:
         for r in numeric:
             values: dict[str, list[tuple[str, float]]] = {}
-            for (slot, rname), e in kept.items():
-                if rname == rnd.name and (slot, rname) not in conflicts and r.name in e.values:
-                    values.setdefault(e.slot.unit, []).append((slot, float(e.values[r.name])))
+            for (slot, rname), m in merged.items():
+                if rname == rnd.name and not m.conflict and r.name in m.values:
+                    values.setdefault(m.slot.unit, []).append((slot, float(m.values[r.name])))
             for o in find_outliers(values):
                 outliers.add((o.slot, rnd.name, r.name))
                 found.append(
@@ -178,7 +125,7 @@ def _statistical(
 
 
 def _summary(
-    plan: Plan, found: list[Finding], kept: dict[tuple[str, str], Entry], files: list[dict[str, Any]]
+    plan: Plan, found: list[Finding], merged: dict[Key, Merged], files: list[dict[str, Any]]
 ) -> dict[str, Any]:
     by_severity = Counter(f.severity.value for f in found)
     return {
@@ -186,7 +133,7 @@ def _summary(
         "study": plan.spec.study.id,
         "files": files,
         "slots_expected": len(plan.slots) * len(plan.rounds),
-        "slots_found": len(kept),
+        "slots_found": sum(1 for m in merged.values() if m.rows),
         "by_severity": {s.value: by_severity.get(s.value, 0) for s in Severity},
         "by_kind": dict(sorted(Counter(f.kind.value for f in found).items())),
     }

@@ -31,6 +31,7 @@ class Kind(StrEnum):
     NOT_A_LEVEL = "not-a-level"
     BAD_DATE = "bad-date"
     FORMULA_CELL = "formula-cell"
+    TOO_MANY_DECIMALS = "too-many-decimals"
     MISSING_VALUE = "missing-value"
     DECLARED_MISSING = "declared-missing"
     REASON_WITH_VALUE = "reason-with-value"
@@ -44,6 +45,7 @@ _WARNINGS = {
     Kind.EXTRA_COLUMN,
     Kind.DUPLICATE_SLOT,
     Kind.FORMULA_CELL,
+    Kind.TOO_MANY_DECIMALS,
     Kind.REASON_WITH_VALUE,
     Kind.OUTLIER_SUBSAMPLE,
     Kind.POSSIBLE_SWAP,
@@ -72,6 +74,7 @@ class Finding:
     column: str | None = None
     value: str | None = None
     suggestion: str | None = None
+    cause: str | None = None  # the file whose problem this finding follows from, when it does
 
     def to_dict(self) -> dict[str, Any]:
         """Plain JSON data, kind and severity as their names."""

@@ -1,81 +1,219 @@
-"""Bring the entries of every file together: one per slot and round, or a finding saying why not."""
+"""Bring every file's rows of a slot together, cell by cell, then judge what is still missing.
+
+A row whose response cells are all blank and that gives no reason is "not filled here": it
+never conflicts with the same slot filled in another file and never hides that file's
+values (people fill their own copies by round or by block). A file without a response
+column says nothing about that response. Two rows conflict only on a cell filled in both
+with different values; a second row with the same values is a duplicate. Notes and added
+cells of every row are kept.
+"""
 
 from __future__ import annotations
 
-from layout.intake.findings import Finding, Kind, finding
+from dataclasses import dataclass, field
+from typing import Any
+
+from layout.intake.findings import Finding, Kind, finding, show_value
 from layout.intake.rows import Entry
-from layout.plan import Plan
+from layout.plan import Plan, Slot
+
+Key = tuple[str, str]  # (slot code, round)
 
 
-def _signature(e: Entry) -> tuple[object, ...]:
-    # parsed values where they parsed (217 and "217.0" agree), the typed text where they did not
-    cells = {name: e.values.get(name, text) for name, text in e.raw.items()}
-    return (tuple(sorted((k, str(v)) for k, v in cells.items())), e.reason)
+@dataclass
+class Merged:
+    """All that the returned rows say about one slot in one round."""
+
+    slot: Slot
+    round: str
+    values: dict[str, Any] = field(default_factory=dict)
+    reason: str | None = None
+    notes: list[str] = field(default_factory=list)
+    extras: dict[str, str] = field(default_factory=dict)
+    rejected: dict[str, str] = field(default_factory=dict)  # response → typed text that was refused
+    seen: set[str] = field(default_factory=set)  # responses some row had a column for
+    rows: list[Entry] = field(default_factory=list)  # the rows that filled something, first first
+    blank_rows: list[Entry] = field(default_factory=list)
+    conflict: dict[str, list[str]] = field(default_factory=dict)  # response or missing_reason → the differing texts
+    errors: int = 0
+
+    @property
+    def note(self) -> str | None:
+        return " | ".join(self.notes) if self.notes else None
+
+    @property
+    def anchor(self) -> Entry:
+        """The row findings about the merged slot point to."""
+        return (self.rows or self.blank_rows)[0]
 
 
-def _shown(e: Entry, name: str) -> str:
-    from layout.intake.findings import show_value
-
+def _cell(e: Entry, name: str) -> str:
+    """A filled cell as compared: the parsed value where it parsed (217 and '217.0' agree), else the text."""
     return show_value(e.values[name]) if name in e.values else e.raw.get(name, "")
 
 
-def merge_entries(
-    plan: Plan, entries: list[Entry]
-) -> tuple[dict[tuple[str, str], Entry], set[tuple[str, str]], list[Finding]]:
-    """The kept entry per (slot, round), the keys in conflict, and the findings of merging."""
-    kept: dict[tuple[str, str], Entry] = {}
-    conflicts: set[tuple[str, str]] = set()
+def merge_entries(plan: Plan, entries: list[Entry]) -> tuple[dict[Key, Merged], list[Finding]]:
+    """One Merged per (slot, round) that any row names, and the findings of bringing rows together."""
+    merged: dict[Key, Merged] = {}
     found: list[Finding] = []
     for e in entries:
         key = (e.slot.code, e.round)
-        first = kept.get(key)
-        if first is None:
-            kept[key] = e
+        m = merged.setdefault(key, Merged(e.slot, e.round))
+        m.seen |= set(e.raw)
+        if e.note and e.note not in m.notes:
+            m.notes.append(e.note)
+        for k, v in e.extras.items():
+            m.extras[k] = v if k not in m.extras or m.extras[k] == v else f"{m.extras[k]} | {v}"
+        if not e.filled:
+            m.blank_rows.append(e)
             continue
-        where = {"file": e.file, "row": e.row, "code": e.slot.code, "unit": e.slot.unit}
-        other = f"{first.file} row {first.row}"
-        if _signature(first) == _signature(e):
-            found.append(
-                finding(
-                    Kind.DUPLICATE_SLOT,
-                    f"{e.slot.code} round {e.round} is entered again, with the same values as {other}",
-                    **where,
-                )
-            )
+        if m.rows:
+            found += _compare(m, e)
+        _take(m, e)
+    return merged, found
+
+
+def _take(m: Merged, e: Entry) -> None:
+    """Fill the slot's empty cells from row e."""
+    for name, text in e.raw.items():
+        if not text or name in m.conflict:
             continue
-        conflicts.add(key)
-        diffs = [name for name in sorted(set(first.raw) | set(e.raw)) if _shown(first, name) != _shown(e, name)]
-        if first.reason != e.reason:
-            diffs.append("missing_reason")
-        column = diffs[0] if diffs else None
-        a = (_shown(first, column) if column != "missing_reason" else first.reason or "") if column else ""
-        b = (_shown(e, column) if column != "missing_reason" else e.reason or "") if column else ""
-        found.append(
+        if name in e.values and name not in m.values and name not in m.rejected:
+            m.values[name] = e.values[name]
+        elif name in e.rejected and name not in m.values and name not in m.rejected:
+            m.rejected[name] = e.rejected[name]
+    if e.reason and m.reason is None:
+        m.reason = e.reason
+    m.rows.append(e)
+    m.errors += e.errors
+
+
+def _compare(m: Merged, e: Entry) -> list[Finding]:
+    """duplicate-slot or conflicting-slot for a second filled row of a slot; nothing when it only adds cells."""
+    diffs: list[tuple[str, str, str]] = []
+    overlap = 0
+    for name, text in e.raw.items():
+        if not text:
+            continue
+        before = next((r for r in m.rows if r.raw.get(name)), None)
+        if before is None:
+            continue
+        overlap += 1
+        a, b = _cell(before, name), _cell(e, name)
+        if a != b:
+            diffs.append((name, a, b))
+            m.conflict.setdefault(name, [a]).append(b)
+    if e.reason and m.reason:
+        overlap += 1
+        if e.reason != m.reason:
+            diffs.append(("missing_reason", m.reason, e.reason))
+            m.conflict.setdefault("missing_reason", [m.reason]).append(e.reason)
+    first = m.rows[0]
+    where = {"file": e.file, "row": e.row, "code": e.slot.code, "unit": e.slot.unit}
+    other = f"{first.file} row {first.row}"
+    if diffs:
+        name, a, b = diffs[0]
+        return [
             finding(
                 Kind.CONFLICTING_SLOT,
-                f"{e.slot.code} round {e.round} has different values here and in {other} ({', '.join(diffs)}): "
-                f"{a or 'blank'!s} there, {b or 'blank'!s} here",
-                column=column,
+                f"{e.slot.code} round {e.round} has different values here and in {other} "
+                f"({', '.join(d[0] for d in diffs)}): {a or 'blank'} there, {b or 'blank'} here",
+                column=name,
                 value=f"{a} | {b}",
                 suggestion=f"keep one of: {other}, {e.file} row {e.row}",
                 **where,
             )
-        )
-    return kept, conflicts, found
+        ]
+    adds_nothing = all(not text or any(r.raw.get(name) for r in m.rows) for name, text in e.raw.items())
+    if overlap and adds_nothing and not (e.reason and not m.reason):
+        return [
+            finding(
+                Kind.DUPLICATE_SLOT,
+                f"{e.slot.code} round {e.round} is entered again, with the same values as {other}",
+                **where,
+            )
+        ]
+    return []
 
 
-def missing_slots(plan: Plan, kept: dict[tuple[str, str], Entry]) -> list[Finding]:
-    """missing-unit when every slot of a unit is absent in a round, else missing-slot per absent slot."""
+def completeness(plan: Plan, merged: dict[Key, Merged]) -> list[Finding]:
+    """missing-value, declared-missing and reason-with-value for each slot, once every file's rows are merged."""
+    responses = {r.name: r for r in plan.spec.response}
     found: list[Finding] = []
-    slots_of: dict[str, list[str]] = {}
-    for s in plan.slots:
-        slots_of.setdefault(s.unit, []).append(s.code)
+    for m in merged.values():
+        e = m.anchor
+        where = {"file": e.file, "row": e.row, "code": m.slot.code, "unit": m.slot.unit}
+        blank = [
+            n for n in responses if n in m.seen and n not in m.values and n not in m.rejected and n not in m.conflict
+        ]
+        needed = [n for n in blank if responses[n].required]
+        if m.reason:
+            if blank:
+                found.append(
+                    finding(
+                        Kind.DECLARED_MISSING,
+                        f"{', '.join(responses[b].header for b in blank)} missing: {m.reason}",
+                        column=responses[blank[0]].header,
+                        value=m.reason,
+                        **where,
+                    )
+                )
+            entered = [n for n in responses if n in m.values]
+            if entered:
+                found.append(
+                    finding(
+                        Kind.REASON_WITH_VALUE,
+                        f"missing_reason {m.reason!r} is given, but {', '.join(responses[n].header for n in entered)} "
+                        "has a value; the value is kept",
+                        column="missing_reason",
+                        value=m.reason,
+                        **where,
+                    )
+                )
+        else:
+            found += [
+                finding(
+                    Kind.MISSING_VALUE,
+                    f"{responses[n].header} is blank and no missing_reason is given",
+                    column=responses[n].header,
+                    **where,
+                )
+                for n in needed
+            ]
+    return found
+
+
+def status(m: Merged | None, plan: Plan) -> str:
+    """The tidy table's status of a slot-round."""
+    if m is None:
+        return "missing"
+    if m.conflict:
+        return "conflict"
+    required_blank = [
+        r.name
+        for r in plan.spec.response
+        if r.required and r.name in m.seen and r.name not in m.values and r.name not in m.rejected
+    ]
+    if m.errors or m.rejected or (required_blank and not m.reason):
+        return "error"
+    if required_blank or (m.reason and not m.values):
+        return "declared-missing"
+    return "ok"
+
+
+def missing_slots(plan: Plan, merged: dict[Key, Merged], cause: str | None = None) -> list[Finding]:
+    """missing-unit when every slot of a unit is absent in a round, else missing-slot per absent slot.
+
+    cause names the unusable file these may follow from, so reports can group them under it.
+    """
+    found: list[Finding] = []
     for rnd in plan.rounds:
         for u in plan.units:
-            absent = [c for c in slots_of[u.code] if (c, rnd.name) not in kept]
+            slots = plan.slots_of[u.code]
+            absent = [s.code for s in slots if (s.code, rnd.name) not in merged]
             if not absent:
                 continue
-            if len(absent) == len(slots_of[u.code]):
+            if len(absent) == len(slots):
                 found.append(
                     finding(
                         Kind.MISSING_UNIT,
@@ -83,13 +221,18 @@ def missing_slots(plan: Plan, kept: dict[tuple[str, str], Entry]) -> list[Findin
                         f"{len(absent)} slots is in any file for round {rnd.name}",
                         code=u.code,
                         unit=u.code,
+                        cause=cause,
                     )
                 )
             else:
-                for c in absent:
-                    found.append(
-                        finding(
-                            Kind.MISSING_SLOT, f"{c} (round {rnd.name}) is in no returned file", code=c, unit=u.code
-                        )
+                found += [
+                    finding(
+                        Kind.MISSING_SLOT,
+                        f"{c} (round {rnd.name}) is in no returned file",
+                        code=c,
+                        unit=u.code,
+                        cause=cause,
                     )
+                    for c in absent
+                ]
     return found

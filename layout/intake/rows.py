@@ -9,7 +9,7 @@ from layout.codes import CodeParts, compact, index_codes, parse_code, serial_wid
 from layout.intake.columns import Columns
 from layout.intake.findings import Finding, Kind, Severity, finding, show_value
 from layout.intake.readers import ReturnedTable
-from layout.intake.values import is_blank, parse
+from layout.intake.values import close_to, excess_decimals, is_blank, parse
 from layout.plan import Plan, Slot
 
 
@@ -26,7 +26,13 @@ class Entry:
     file: str
     row: int
     errors: int = 0
-    raw: dict[str, str] = field(default_factory=dict)
+    raw: dict[str, str] = field(default_factory=dict)  # response → the cell as typed ("" when blank)
+    rejected: dict[str, str] = field(default_factory=dict)  # response → typed text that is not a valid value
+
+    @property
+    def filled(self) -> bool:
+        """Whether the row says anything about the slot: a response cell or a missing reason."""
+        return bool(self.reason) or any(text for text in self.raw.values())
 
 
 @dataclass
@@ -155,12 +161,15 @@ def _place(
     rnd = _round_of(cells, cols, idx)
     if rnd is None:
         got = _text(cells[cols.structure["round"]]) if "round" in cols.structure else ""
+        near = close_to(got, [r.name for r in plan.rounds]) if got else None
         found.append(
             finding(
                 Kind.UNIT_MISMATCH,
-                f"round {got!r} is not a round of this plan ({', '.join(r.name for r in plan.rounds)})",
+                f"round {got!r} is not a round of this plan ({', '.join(r.name for r in plan.rounds)})"
+                + (f"; did you mean {near!r}?" if near else ""),
                 column="round",
                 value=got,
+                suggestion=near,
                 **where,
             )
         )
@@ -212,12 +221,14 @@ def _code_finding(code_text: str, idx: PlanIndex, at: dict[str, Any]) -> Finding
 def _read_values(
     entry: Entry, cells: list[Any], cols: Columns, idx: PlanIndex, table: ReturnedTable, found: list[Finding]
 ) -> None:
-    """Parse the row's responses, reason, note and added cells into entry; findings for each problem."""
+    """Parse the row's responses, reason, note and added cells into entry; findings for each bad cell.
+
+    Whether a blank needs a reason is judged after merging, when every file's rows of the slot are known.
+    """
     spec = idx.plan.spec
     responses = {r.name: r for r in spec.response}
     reasons = {m.lower(): m for m in spec.collection.missing_reasons}
     where = {"file": table.file, "row": entry.row, "code": entry.slot.code, "unit": entry.slot.unit}
-    blanks: list[str] = []
     for name, i in cols.responses.items():
         r, cell = responses[name], cells[i]
         entry.raw[name] = _text(cell)
@@ -232,13 +243,24 @@ def _read_values(
                 )
             )
         if is_blank(cell):
-            if r.required:
-                blanks.append(name)
             continue
         p = parse(cell, r, table.decimal_comma)
         if p.problem is None:
             entry.values[name] = p.value
+            extra = excess_decimals(cell, r, table.decimal_comma)
+            if extra:
+                found.append(
+                    finding(
+                        Kind.TOO_MANY_DECIMALS,
+                        f"{_text(cell)!r} has {extra} decimals; {r.header} is recorded to {r.decimals} "
+                        "(a unit or reading mistake?)",
+                        column=r.header,
+                        value=_text(cell),
+                        **where,
+                    )
+                )
         else:
+            entry.rejected[name] = _text(cell)
             found.append(
                 finding(
                     p.problem,
@@ -253,48 +275,21 @@ def _read_values(
         text = _text(cells[cols.reason])
         entry.reason = reasons.get(text.lower(), text)
         if text.lower() not in reasons:
+            near = close_to(text, list(reasons.values()))
             found.append(
                 finding(
                     Kind.NOT_A_LEVEL,
-                    f"missing_reason {text!r} is not one of {', '.join(reasons.values())}",
+                    f"missing_reason {text!r} is not one of {', '.join(reasons.values())}"
+                    + (f"; did you mean {near!r}?" if near else ""),
                     column="missing_reason",
                     value=text,
+                    suggestion=near,
                     **where,
                 )
             )
     if cols.note is not None and not is_blank(cells[cols.note]):
         entry.note = _text(cells[cols.note])
     entry.extras = {name: _text(cells[i]) for name, i in cols.extras.items() if not is_blank(cells[i])}
-    if blanks and entry.reason:
-        found.append(
-            finding(
-                Kind.DECLARED_MISSING,
-                f"{', '.join(responses[b].header for b in blanks)} missing: {entry.reason}",
-                column=responses[blanks[0]].header,
-                value=entry.reason,
-                **where,
-            )
-        )
-    elif blanks:
-        found += [
-            finding(
-                Kind.MISSING_VALUE,
-                f"{responses[b].header} is blank and no missing_reason is given",
-                column=responses[b].header,
-                **where,
-            )
-            for b in blanks
-        ]
-    if entry.reason and not blanks and cols.responses:
-        found.append(
-            finding(
-                Kind.REASON_WITH_VALUE,
-                f"missing_reason {entry.reason!r} is given, but every value is entered",
-                column="missing_reason",
-                value=entry.reason,
-                **where,
-            )
-        )
 
 
 def _code_from_place(cells: list[Any], cols: Columns, idx: PlanIndex) -> str | None:

@@ -6,7 +6,8 @@ from typing import Any
 
 import pandas as pd
 
-from layout.intake.rows import Entry, Unmatched
+from layout.intake.merge import Key, Merged, status
+from layout.intake.rows import Unmatched
 from layout.names import ADDED_PREFIX
 from layout.plan import Plan
 
@@ -16,20 +17,26 @@ def factor_columns(plan: Plan) -> list[str]:
     return [f.name for f in plan.spec.factor if f.name != "treatment"]
 
 
-def tidy_table(
-    plan: Plan, kept: dict[tuple[str, str], Entry], conflicts: set[tuple[str, str]], unmatched: list[Unmatched]
-) -> pd.DataFrame:
-    """Plan columns, responses, reason, note, added columns, status, and where each row came from."""
+def _raw(m: Merged | None) -> str | None:
+    """What was typed but is not in the value columns: refused text, and every side of a conflict."""
+    if m is None:
+        return None
+    parts = [f"{k}={v}" for k, v in m.rejected.items()]
+    parts += [f"{k}={' | '.join(v)}" for k, v in m.conflict.items()]
+    return "; ".join(parts) or None
+
+
+def tidy_table(plan: Plan, merged: dict[Key, Merged], unmatched: list[Unmatched]) -> pd.DataFrame:
+    """Plan columns, responses, reason, note, typed text kept aside, added columns, status, and sources."""
     factors = factor_columns(plan)
     responses = [r.name for r in plan.spec.response]
-    extras = sorted({k for e in kept.values() for k in e.extras})
+    extras = sorted({k for m in merged.values() for k in m.extras})
     added = {x: ADDED_PREFIX + x for x in extras}  # a prefix, so an added column never overwrites a plan column
     records: list[dict[str, Any]] = []
-    slots_of = plan.slots_of
     for rnd in plan.rounds:
         for u in plan.units:
-            for s in slots_of[u.code]:
-                e = kept.get((s.code, rnd.name))
+            for s in plan.slots_of[u.code]:
+                m = merged.get((s.code, rnd.name))
                 rec: dict[str, Any] = {"code": s.code, "unit": u.code, "serial": u.serial, "treatment": u.treatment}
                 rec.update({f: u.levels.get(f) for f in factors})
                 rec.update(
@@ -42,23 +49,26 @@ def tidy_table(
                         "round": rnd.name,
                     }
                 )
-                rec.update({r: (e.values.get(r) if e else None) for r in responses})
-                rec["missing_reason"] = e.reason if e else None
-                rec["note"] = e.note if e else None
-                rec.update({added[x]: (e.extras.get(x) if e else None) for x in extras})
-                rec["status"] = _status(e, (s.code, rnd.name) in conflicts)
-                rec["source_file"] = e.file if e else None
-                rec["source_row"] = e.row if e else None
+                rec.update({r: (m.values.get(r) if m else None) for r in responses})
+                rec["missing_reason"] = m.reason if m else None
+                rec["note"] = m.note if m else None
+                rec["raw"] = _raw(m)
+                rec.update({added[x]: (m.extras.get(x) if m else None) for x in extras})
+                rec["status"] = status(m, plan)
+                sources = (m.rows or m.blank_rows) if m else []
+                rec["source_file"] = "; ".join(dict.fromkeys(e.file for e in sources)) or None
+                rec["source_row"] = sources[0].row if sources else None
                 records.append(rec)
-    for m in unmatched:
-        rec = {
-            "code": m.code or None,
-            "status": "unmatched",
-            "note": f"{m.why}: " + "; ".join(f"{k}={v}" for k, v in m.cells.items()),
-            "source_file": m.file,
-            "source_row": m.row,
-        }
-        records.append(rec)
+    for x in unmatched:
+        records.append(
+            {
+                "code": x.code or None,
+                "status": "unmatched",
+                "note": f"{x.why}: " + "; ".join(f"{k}={v}" for k, v in x.cells.items()),
+                "source_file": x.file,
+                "source_row": x.row,
+            }
+        )
     columns = [
         "code",
         "unit",
@@ -74,6 +84,7 @@ def tidy_table(
         *responses,
         "missing_reason",
         "note",
+        "raw",
         *added.values(),
         "status",
         "source_file",
@@ -88,15 +99,3 @@ def tidy_table(
         elif r.kind == "number":
             frame[r.name] = frame[r.name].astype("Float64")
     return frame
-
-
-def _status(e: Entry | None, conflict: bool) -> str:
-    if e is None:
-        return "missing"
-    if conflict:
-        return "conflict"
-    if e.errors:
-        return "error"
-    if e.reason:
-        return "declared-missing"
-    return "ok"

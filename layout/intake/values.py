@@ -26,6 +26,52 @@ class Parsed:
     suggestion: str | None = None
 
 
+def close_to(text: str, choices: list[str]) -> str | None:
+    """The choice a typed word most likely meant: same apart from case, spaces and underscores, or one edit away."""
+    key = _squash(text)
+    for c in choices:
+        if _squash(c) == key:
+            return c
+    near = [c for c in choices if _one_edit(key, _squash(c))]
+    if len(near) == 1:
+        return near[0]
+    found = difflib.get_close_matches(text, choices, n=1, cutoff=0.75)
+    return found[0] if found else None
+
+
+def _squash(text: str) -> str:
+    return re.sub(r"[\s_\-]+", "", str(text).lower())
+
+
+def _one_edit(a: str, b: str) -> bool:
+    """Whether a and b differ by one changed, inserted or dropped character or one swap of neighbours."""
+    if a == b or abs(len(a) - len(b)) > 1:
+        return False
+    if len(a) == len(b):
+        diff = [i for i in range(len(a)) if a[i] != b[i]]
+        return len(diff) == 1 or (
+            len(diff) == 2 and diff[1] == diff[0] + 1 and a[diff[0]] == b[diff[1]] and a[diff[1]] == b[diff[0]]
+        )
+    short, long = sorted((a, b), key=len)
+    return any(long[:i] + long[i + 1 :] == short for i in range(len(long)))
+
+
+def excess_decimals(cell: Any, r: Response, decimal_comma: bool = False) -> int:
+    """How many decimals a number cell has beyond the response's decimals (0 when fine or unknown)."""
+    if r.kind != "number" or r.decimals is None or isinstance(cell, bool):
+        return 0
+    if isinstance(cell, (int, float)):
+        text = repr(float(cell)) if isinstance(cell, float) else str(cell)
+        if "e" in text or "E" in text:
+            return 0
+    else:
+        text = str(cell).strip().replace(" ", "")
+        if decimal_comma:
+            text = text.replace(".", "").replace(",", ".")
+    places = len(text.split(".", 1)[1].rstrip("0")) if "." in text else 0
+    return places if places > r.decimals else 0
+
+
 def is_blank(cell: Any) -> bool:
     """True for an empty cell, or one holding only spaces."""
     return cell is None or (isinstance(cell, str) and not cell.strip())
@@ -61,15 +107,23 @@ def parse(cell: Any, r: Response, decimal_comma: bool = False) -> Parsed:
         for level in levels:
             if text.lower() == level.lower():
                 return Parsed(level)
-        near = difflib.get_close_matches(text.lower(), [lv.lower() for lv in levels], n=1, cutoff=0.6)
-        hint = next((lv for lv in levels if near and lv.lower() == near[0]), None)
-        return Parsed(problem=Kind.NOT_A_LEVEL, message=f"is not one of {', '.join(levels)}", suggestion=hint)
+        hint = close_to(text, list(levels))
+        more = f"; did you mean {hint!r}?" if hint else ""
+        return Parsed(problem=Kind.NOT_A_LEVEL, message=f"is not one of {', '.join(levels)}{more}", suggestion=hint)
     if r.kind == "date":
         d = _date(cell)
         if d is None:
             return Parsed(problem=Kind.BAD_DATE, message="is not a date; write it as YYYY-MM-DD")
+        if (r.min is not None and d < _as_date(r.min)) or (r.max is not None and d > _as_date(r.max)):
+            return Parsed(
+                problem=Kind.OUT_OF_RANGE, message=f"is outside the allowed dates; {r.header} must be {_expect(r)}"
+            )
         return Parsed(d.isoformat())
     return Parsed(str(cell).strip())
+
+
+def _as_date(bound: Any) -> date:
+    return bound if isinstance(bound, date) else date.fromisoformat(str(bound))
 
 
 def _expect(r: Response) -> str:

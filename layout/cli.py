@@ -37,6 +37,7 @@ replaced without --force: re-randomizing must be deliberate."""
 _EPILOG_SHEETS = """example:
   layout sheets plan.json -o field --pdf
   layout sheets plan.json --only labels --label-printer --label-size 50x25 --pdf
+  layout sheets plan.json --split round -o field        # entry-<round>.xlsx: one copy per person
   layout sheets plan.json --only labels --label-grid 2x7 --label-size 99x38 --label-margins 15x6 --label-gaps 2x0
 
 Makes entry.xlsx, sheets.html, labels.html, unit-labels.html, map.html (and map-key.html
@@ -139,6 +140,7 @@ def _sheets(args: argparse.Namespace) -> int:
         pdf_engine=args.pdf_engine,
         force=args.force,
         progress=True,
+        split=args.split,
     )
     folder = Path(args.output) if args.output else Path(args.plan).parent
     written = write_sheets(plan, folder, options)
@@ -278,6 +280,11 @@ def build_parser() -> argparse.ArgumentParser:
     sheets.add_argument("plan", metavar="PLAN", help="plan.json made by 'layout plan'")
     sheets.add_argument("-o", "--output", metavar="DIR", help="folder to write into (default: the plan's folder)")
     sheets.add_argument("--only", metavar="LIST", help=f"comma-separated subset of {','.join(PRODUCTS)}")
+    sheets.add_argument(
+        "--split",
+        choices=["round", "block"],
+        help="one workbook and one set of sheets per round (or block), entry-<round>.xlsx, for people filling their own copies",
+    )
     sheets.add_argument("--pdf", action="store_true", help="also write PDFs of the sheets and labels")
     sheets.add_argument(
         "--pdf-engine",

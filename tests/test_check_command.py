@@ -61,7 +61,8 @@ class TestExitCodes:
         assert main(["check", str(plan), str(filled), str(bad), "-o", str(tmp_path / "r")]) == 1
         findings = json.loads((tmp_path / "r" / "report.json").read_text())["findings"]
         assert all(
-            set(f) == {"kind", "severity", "file", "row", "code", "unit", "column", "value", "message", "suggestion", "cause"}
+            set(f)
+            == {"kind", "severity", "file", "row", "code", "unit", "column", "value", "message", "suggestion", "cause"}
             for f in findings
         )
         assert any(

@@ -48,7 +48,7 @@ def check_returns(
     """
     say = progress or (lambda _: None)
     got = gather(plan, paths, say)
-    found = list(got.findings)
+    found = list(got.findings) + _columns_nowhere(plan, got.entries)
     say("merging and looking for missing slots")
     merged, merge_findings = merge_entries(plan, got.entries)
     found += merge_findings
@@ -61,6 +61,23 @@ def check_returns(
     found += stats
     tidy = tidy_table(plan, merged, got.unmatched)
     return CheckResult(found, tidy, _summary(plan, found, merged, got.files), outliers, swaps)
+
+
+def _columns_nowhere(plan: Plan, entries: list[Any]) -> list[Finding]:
+    """missing-column for a response that no returned file has a column for: its values are nowhere."""
+    if not entries:
+        return []
+    seen = set().union(*(e.raw.keys() for e in entries))
+    return [
+        finding(
+            Kind.MISSING_COLUMN,
+            f"no returned file has the response column {r.header!r}, so none of its values were returned",
+            None if r.required else Severity.WARNING,
+            column=r.header,
+        )
+        for r in plan.spec.response
+        if r.name not in seen
+    ]
 
 
 def _count_at_causes(found: list[Finding], unusable: list[str], missing: list[Finding]) -> list[Finding]:

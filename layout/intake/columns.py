@@ -98,10 +98,12 @@ def _missing(plan: Plan, cols: Columns, roles: dict[str, tuple[str, str]], at: d
         )
     for r in plan.spec.response:
         if r.name not in cols.responses:
+            # another file may carry it (people type what they measured); check_returns says so when none does
             found.append(
                 finding(
                     Kind.MISSING_COLUMN,
-                    f"the response column {r.header!r} is missing; its values are not in this file",
+                    f"the response column {r.header!r} is missing; this file says nothing about it",
+                    Severity.WARNING,
                     column=r.header,
                     **at,
                 )

@@ -5,6 +5,7 @@ Shared by the workbook and the printed sheets so both list the same rows in the 
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 from typing import Final
 
@@ -39,14 +40,43 @@ def headers(plan: Plan) -> list[str]:
     return structure_columns(plan) + [r.header for r in plan.spec.response] + list(TRAILING)
 
 
-def entry_rows(plan: Plan) -> list[EntryRow]:
-    """Every slot in every round, rounds in spec order, units in the round's order."""
+@dataclass(frozen=True)
+class Part:
+    """One round or one block of the plan, for a copy of the sheets that one person fills."""
+
+    by: str  # "round" or "block"
+    value: str | int
+    slug: str  # for file names: entry-<slug>.xlsx
+
+    def holds(self, row: EntryRow) -> bool:
+        """Whether a row of the entry sheet belongs to this part."""
+        return (row.round if self.by == "round" else row.unit.block) == self.value
+
+
+def parts(plan: Plan, split: str) -> list[Part]:
+    """The rounds or blocks of a plan as parts with file-safe, distinct names."""
+    if split == "round":
+        values: list[str | int] = [r.name for r in plan.rounds]
+        slugs = [re.sub(r"[^A-Za-z0-9._-]+", "_", str(v)).strip("._") or "round" for v in values]
+    else:
+        values = sorted({u.block for u in plan.units if u.block is not None})
+        slugs = [f"block{v}" for v in values]
+    seen: dict[str, int] = {}
+    out = []
+    for value, slug in zip(values, slugs, strict=True):
+        seen[slug] = seen.get(slug, 0) + 1
+        out.append(Part(split, value, slug if seen[slug] == 1 else f"{slug}-{seen[slug]}"))
+    return out
+
+
+def entry_rows(plan: Plan, part: Part | None = None) -> list[EntryRow]:
+    """Every slot in every round (or in one part), rounds in spec order, units in the round's order."""
     rows: list[EntryRow] = []
     for rnd in plan.rounds:
         for code in rnd.order:
             unit = plan.unit_by_code[code]
             rows += [EntryRow(s.code, unit, s.subsample, rnd.name) for s in plan.slots_of[code]]
-    return rows
+    return [r for r in rows if part is None or part.holds(r)]
 
 
 def structure_values(plan: Plan, row: EntryRow) -> list[object]:

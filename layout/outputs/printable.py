@@ -12,7 +12,7 @@ from typing import Any, Final
 from markupsafe import Markup
 
 from layout.meta import __version__
-from layout.outputs.entry_table import EntryRow, allowed_text, entry_rows
+from layout.outputs.entry_table import EntryRow, Part, allowed_text, entry_rows
 from layout.outputs.labels import PAD_MM, LabelGeometry
 from layout.outputs.qr import qr_svg
 from layout.plan import Plan, Unit
@@ -60,12 +60,12 @@ class SheetPage:
     number: int = 0
 
 
-def sheet_pages(plan: Plan, paper: str) -> tuple[list[SheetPage], str]:
+def sheet_pages(plan: Plan, paper: str, part: Part | None = None) -> tuple[list[SheetPage], str]:
     """Rows cut into pages by round and block, and the orientation that fits the responses."""
     orientation = "portrait" if len(plan.spec.response) <= 3 else "landscape"
     per_page = _SHEET_ROWS[(paper, orientation)]
     pages: list[SheetPage] = []
-    for row in entry_rows(plan):
+    for row in entry_rows(plan, part):
         last = pages[-1] if pages else None
         if last is None or (last.round, last.block) != (row.round, row.unit.block) or len(last.rows) >= per_page:
             pages.append(SheetPage(row.round, row.unit.block))
@@ -75,9 +75,9 @@ def sheet_pages(plan: Plan, paper: str) -> tuple[list[SheetPage], str]:
     return pages, orientation
 
 
-def render_sheets(plan: Plan, paper: str = "a4") -> str:
-    """sheets.html: collection sheets by round and block, in collection order."""
-    pages, orientation = sheet_pages(plan, paper)
+def render_sheets(plan: Plan, paper: str = "a4", part: Part | None = None) -> str:
+    """sheets.html: collection sheets by round and block, in collection order (all, or one part's)."""
+    pages, orientation = sheet_pages(plan, paper, part)
     responses = [{"header": r.header, "name": r.name, "allowed": allowed_text(r)} for r in plan.spec.response]
     return (
         template_env()

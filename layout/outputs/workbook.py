@@ -22,7 +22,15 @@ from openpyxl.worksheet._write_only import WriteOnlyWorksheet
 from openpyxl.worksheet.datavalidation import DataValidation
 
 from layout.meta import ENTRY_FORMAT, HIDDEN_SHEET, __version__
-from layout.outputs.entry_table import TRAILING, allowed_text, entry_rows, headers, structure_columns, structure_values
+from layout.outputs.entry_table import (
+    TRAILING,
+    Part,
+    allowed_text,
+    entry_rows,
+    headers,
+    structure_columns,
+    structure_values,
+)
 from layout.plan import Plan
 from layout.spec import Response
 
@@ -85,10 +93,10 @@ def _list_formula(items: tuple[str, ...]) -> str:
     return f'"{text}"'
 
 
-def _entry_sheet(wb: Workbook, plan: Plan) -> None:
+def _entry_sheet(wb: Workbook, plan: Plan, part: Part | None) -> None:
     ws = wb.create_sheet("entry")
     head = headers(plan)
-    rows = entry_rows(plan)
+    rows = entry_rows(plan, part)
     n_struct = len(structure_columns(plan))
     last = len(rows) + 1
     widths = [14, 12, 7, 6, 6, 10, 10] + ([16] if not plan.spec.study.blind else [])
@@ -208,14 +216,14 @@ def _stable_zip(data: bytes) -> bytes:
     return out.getvalue()
 
 
-def workbook_bytes(plan: Plan) -> bytes:
-    """entry.xlsx as bytes."""
+def workbook_bytes(plan: Plan, part: Part | None = None) -> bytes:
+    """entry.xlsx as bytes: every slot and round, or only one round's or block's rows."""
     wb = Workbook(write_only=True)
     wb.properties.creator = f"layout {__version__}"
     wb.properties.title = plan.spec.study.title
     wb.properties.created = _FIXED_TIME
     wb.properties.modified = _FIXED_TIME
-    _entry_sheet(wb, plan)
+    _entry_sheet(wb, plan, part)
     _units_sheet(wb, plan)
     _about_sheet(wb, plan)
     _hidden_sheet(wb, plan)

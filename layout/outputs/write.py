@@ -14,6 +14,7 @@ from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, T
 
 from layout.errors import UsageError
 from layout.files import refuse_existing, write_new
+from layout.outputs.entry_table import Part, parts
 from layout.outputs.keyfile import key_csv
 from layout.outputs.labels import LabelGeometry
 from layout.outputs.pdf import choose_engine, html_to_pdf
@@ -35,6 +36,15 @@ class SheetOptions:
     pdf_engine: str = "auto"
     force: bool = False
     progress: bool = False
+    split: str | None = None  # "round" or "block": one workbook and one set of sheets per part
+
+
+def _parts(plan: Plan, options: SheetOptions) -> list[Part | None]:
+    return list(parts(plan, options.split)) if options.split else [None]
+
+
+def _suffixes(plan: Plan, options: SheetOptions) -> list[str]:
+    return [f"-{p.slug}" if p else "" for p in _parts(plan, options)]
 
 
 def planned_files(plan: Plan, options: SheetOptions) -> list[str]:
@@ -43,9 +53,10 @@ def planned_files(plan: Plan, options: SheetOptions) -> list[str]:
     pdf = options.pdf
     for product in options.only:
         if product == "entry":
-            names.append("entry.xlsx")
+            names += [f"entry{sfx}.xlsx" for sfx in _suffixes(plan, options)]
         elif product == "sheets":
-            names += ["sheets.html"] + (["sheets.pdf"] if pdf else [])
+            for sfx in _suffixes(plan, options):
+                names += [f"sheets{sfx}.html"] + ([f"sheets{sfx}.pdf"] if pdf else [])
         elif product == "labels":
             names += ["labels.html", "unit-labels.html"] + (["labels.pdf", "unit-labels.pdf"] if pdf else [])
         elif product == "map":
@@ -90,6 +101,10 @@ def write_sheets(plan: Plan, out_dir: str | Path, options: SheetOptions | None =
     unknown = [p for p in options.only if p not in PRODUCTS]
     if unknown:
         raise UsageError(f"--only: {unknown[0]!r} is not one of {', '.join(PRODUCTS)}")
+    if options.split not in (None, "round", "block"):
+        raise UsageError(f"--split: must be round or block, got {options.split!r}")
+    if options.split == "block" and all(u.block is None for u in plan.units):
+        raise UsageError(f"--split block: a {plan.spec.design.type} has no blocks; use --split round")
     if options.paper not in ("a4", "letter"):
         raise UsageError(f"--paper: must be a4 or letter, got {options.paper!r}")
     if options.labels == LabelGeometry() and options.paper != "a4":
@@ -119,12 +134,15 @@ def write_sheets(plan: Plan, out_dir: str | Path, options: SheetOptions | None =
     with bar.progress or _null():
         for product in options.only:
             if product == "entry":
-                put("entry.xlsx", workbook_bytes(plan))
+                for part in _parts(plan, options):
+                    put(f"entry{'-' + part.slug if part else ''}.xlsx", workbook_bytes(plan, part))
             elif product == "sheets":
-                html = render_sheets(plan, options.paper)
-                put("sheets.html", html)
-                if options.pdf:
-                    pdf_of("sheets.html", html)
+                for part in _parts(plan, options):
+                    name = f"sheets{'-' + part.slug if part else ''}.html"
+                    html = render_sheets(plan, options.paper, part)
+                    put(name, html)
+                    if options.pdf:
+                        pdf_of(name, html)
             elif product == "labels":
                 geometry = LabelGeometry(**{**options.labels.__dict__, "paper": options.paper})
                 pages = []

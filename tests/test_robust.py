@@ -6,7 +6,8 @@ import numpy as np
 import pytest
 
 from layout import Plan, loads_spec, make_plan
-from layout.intake.robust import find_outliers, find_swaps
+from layout.intake.robust import find_outliers, find_swaps, outlier_threshold, swap_threshold
+from layout.intake.screen import screen
 
 SPEC = """
 [study]
@@ -40,64 +41,109 @@ def means(values: dict[str, list[tuple[str, float]]]) -> dict[str, float]:
     return {u: float(np.mean([v for _, v in vs])) for u, vs in values.items()}
 
 
-class TestPossibleSwap:
-    @pytest.mark.parametrize("spacing", [1.0, 2.5], ids=["treatments-1sd-apart", "treatments-2.5sd-apart"])
-    def test_false_alarms_at_most_one_percent_of_units(self, spacing: float) -> None:
-        """On 200 clean simulated trials at most 1% of units are flagged (spacings near the worst case)."""
-        rng = np.random.default_rng(20261201)
-        flagged = total = 0
-        for _ in range(TRIALS):
-            plan, values = simulate_trial(rng, spacing)
-            flagged += 2 * len(find_swaps(plan, means(values)))
-            total += len(plan.units)
-        assert flagged / total <= 0.01, flagged / total
+STUDIES = 500
+DESIGNS = {
+    # 4 × 8 units × 3 subsamples in each design, two numeric responses
+    "crd": 'type = "crd"\nreplicates = 8\nsubsamples = 3\ntreatments = ["a", "b", "c", "d"]',
+    "rcbd": 'type = "rcbd"\nblocks = 8\nsubsamples = 3\ntreatments = ["a", "b", "c", "d"]',
+    "split-plot": (
+        'type = "split-plot"\nblocks = 8\nsubsamples = 3\n'
+        '[[factor]]\nname = "w"\nlevels = ["w1", "w2"]\nwhole_plot = true\n'
+        '[[factor]]\nname = "s"\nlevels = ["s1", "s2"]'
+    ),
+}
 
-    def test_finds_nine_in_ten_swaps_between_treatments_4sd_apart(self) -> None:
-        """With two units of treatments 4 experimental-error SDs apart exchanged, 90% or more are found."""
+
+def study(design: str) -> Plan:
+    text = f'[study]\nid = "SIM"\ntitle = "t"\nseed = 1\n[design]\n{DESIGNS[design]}\n'
+    text += '[[response]]\nname = "y"\nkind = "number"\n[[response]]\nname = "z"\nkind = "number"\n'
+    return make_plan(loads_spec(text, "sim.toml"))
+
+
+def clean_groups(plan: Plan, rng: np.random.Generator, spacing: float) -> dict:
+    """Normal data: treatment effects `spacing` apart, block effects, unit effect and subsample error."""
+    effect = {t: k * spacing for k, t in enumerate(plan.spec.treatments)}
+    block = {b: rng.normal(0, 1) for b in range(1, 9)}
+    groups: dict = {}
+    for rnd in ("1",):
+        for response in ("y", "z"):
+            g = {}
+            for u in plan.units:
+                mu = effect[u.treatment] + block.get(u.block or 0, 0.0) + rng.normal(0, UNIT_SD)
+                g[u.code] = [(s.code, mu + rng.normal(0, SUB_SD)) for s in plan.slots_of[u.code]]
+            groups[(rnd, response)] = g
+    return groups
+
+
+@pytest.mark.slow
+class TestPerStudy:
+    """Error rates as a user meets them: the share of whole clean studies with any warning."""
+
+    @pytest.mark.parametrize("design", list(DESIGNS))
+    def test_clean_studies_rarely_warned(self, design: str) -> None:
+        """500 clean studies (2 responses): at most 5% get any outlier or swap warning."""
+        plan = study(design)
+        rng = np.random.default_rng(len(design))
+        warned = outliers = swaps = 0
+        for k in range(STUDIES):
+            got = screen(plan, clean_groups(plan, rng, spacing=(1.0, 2.5, 4.0)[k % 3]))
+            outliers += bool(got.outliers)
+            swaps += bool(got.swaps)
+            warned += bool(got.outliers or got.swaps)
+        RATES[design] = (warned / STUDIES, outliers / STUDIES, swaps / STUDIES)
+        assert warned / STUDIES <= 0.05, RATES[design]
+
+    def test_finds_four_in_five_swaps_4sd_apart(self) -> None:
+        """crd 4 × 8 × 3: two units of treatments 4 experimental-error SDs apart exchanged are found 80% of the time."""
+        plan = study("crd")
         rng = np.random.default_rng(4)
         found = 0
-        for _ in range(TRIALS):
-            plan, values = simulate_trial(rng, 4.0)
+        for _ in range(STUDIES):
+            groups = clean_groups(plan, rng, spacing=4.0)
             a = next(u.code for u in plan.units if u.treatment == "a")
             b = next(u.code for u in plan.units if u.treatment == "b")
-            values[a], values[b] = values[b], values[a]
-            found += any({s.first, s.second} == {a, b} for s in find_swaps(plan, means(values)))
-        assert found / TRIALS >= 0.90, found / TRIALS
+            for g in groups.values():
+                g[a], g[b] = g[b], g[a]
+            found += any({s.first, s.second} == {a, b} for _, _, s, _, _ in screen(plan, groups).swaps)
+        RATES["swap power"] = (found / STUDIES,)
+        assert found / STUDIES >= 0.80, found / STUDIES
 
+    def test_finds_a_value_eight_sd_off(self) -> None:
+        """One subsample moved 8 subsample SDs is found in 90% or more of studies."""
+        plan = study("crd")
+        rng = np.random.default_rng(12)
+        found = 0
+        for t in range(STUDIES):
+            groups = clean_groups(plan, rng, spacing=2.0)
+            g = groups[("1", "y")]
+            unit = sorted(g)[t % len(g)]
+            slot, v = g[unit][1]
+            g[unit][1] = (slot, v + 8 * SUB_SD * (1 if t % 2 else -1))
+            found += any(o.slot == slot for _, _, o in screen(plan, groups).outliers)
+        RATES["outlier power"] = (found / STUDIES,)
+        assert found / STUDIES >= 0.90, found / STUDIES
+
+
+RATES: dict[str, tuple[float, ...]] = {}
+
+
+class TestRules:
     def test_no_swap_between_equal_treatments(self) -> None:
         """With no treatment effect at all nothing is flagged: a swap cannot be told apart."""
         rng = np.random.default_rng(7)
         plan, values = simulate_trial(rng, 0.0)
-        assert find_swaps(plan, means(values)) == []
-
-
-class TestOutlierSubsample:
-    def test_false_alarms_at_most_one_percent_of_units(self) -> None:
-        """On 200 clean simulated trials at most 1% of units get an outlier warning."""
-        rng = np.random.default_rng(11)
-        flagged = total = 0
-        for _ in range(TRIALS):
-            _, values = simulate_trial(rng, 2.0)
-            flagged += len({o.unit for o in find_outliers(values)})
-            total += len(values)
-        assert flagged / total <= 0.01, flagged / total
-
-    def test_finds_a_value_eight_sd_off(self) -> None:
-        """One subsample moved 8 subsample SDs is found in 90% or more of 200 trials."""
-        rng = np.random.default_rng(12)
-        found = 0
-        for t in range(TRIALS):
-            _, values = simulate_trial(rng, 2.0)
-            unit = sorted(values)[t % len(values)]
-            slot, v = values[unit][1]
-            values[unit][1] = (slot, v + 8 * SUB_SD * (1 if t % 2 else -1))
-            found += any(o.slot == slot for o in find_outliers(values))
-        assert found / TRIALS >= 0.90, found / TRIALS
+        assert find_swaps(plan, means(values), swap_threshold(384)) == []
 
     def test_needs_three_subsamples(self) -> None:
         """With two subsamples a unit cannot say which value is off, so nothing is flagged."""
         values = {f"u{i}": [(f"u{i}/0", 0.0), (f"u{i}/1", 100.0 if i == 0 else 0.5)] for i in range(10)}
-        assert find_outliers(values) == []
+        assert find_outliers(values, outlier_threshold(20)) == []
+
+    def test_thresholds_grow_with_what_is_tested(self) -> None:
+        """Bonferroni: more values or pairs screened in one check, higher thresholds (scipy's normal quantiles)."""
+        assert outlier_threshold(96) == pytest.approx(3.6518, abs=1e-3)  # normal quantile 1 − 0.025/192 (scipy)
+        assert outlier_threshold(96, df=24) > outlier_threshold(96) and outlier_threshold(1000) > outlier_threshold(96)
+        assert swap_threshold(384) == pytest.approx(3.8261**2, rel=1e-3)  # normal quantile 1 − 0.025/384, squared
 
 
 class TestDeletionFormula:

@@ -8,13 +8,12 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
-import numpy as np
 import pandas as pd
 
 from layout.intake.findings import Finding, Kind, Severity, finding
 from layout.intake.gather import gather
 from layout.intake.merge import Key, Merged, completeness, merge_entries, missing_slots
-from layout.intake.robust import find_outliers, find_swaps
+from layout.intake.screen import statistical_findings
 from layout.intake.tidy import tidy_table
 from layout.plan import Plan
 
@@ -57,7 +56,7 @@ def check_returns(
     missing = missing_slots(plan, merged, cause)
     found = _count_at_causes(found, got.unusable, missing) + missing
     say("looking for outlying subsamples and swapped units")
-    stats, outliers, swaps = _statistical(plan, merged)
+    stats, outliers, swaps = statistical_findings(plan, merged)
     found += stats
     tidy = tidy_table(plan, merged, got.unmatched)
     return CheckResult(found, tidy, _summary(plan, found, merged, got.files), outliers, swaps)
@@ -92,53 +91,6 @@ def _count_at_causes(found: list[Finding], unusable: list[str], missing: list[Fi
         else f
         for f in found
     ]
-
-
-def _statistical(
-    plan: Plan, merged: dict[Key, Merged]
-) -> tuple[list[Finding], set[tuple[str, str, str]], set[tuple[str, str]]]:
-    found: list[Finding] = []
-    outliers: set[tuple[str, str, str]] = set()
-    swaps: set[tuple[str, str]] = set()
-    numeric = [r for r in plan.spec.response if r.kind in ("number", "integer")]
-    pair_hits: dict[tuple[str, str, str], list[str]] = {}
-    for rnd in plan.rounds:
-        for r in numeric:
-            values: dict[str, list[tuple[str, float]]] = {}
-            for (slot, rname), m in merged.items():
-                if rname == rnd.name and not m.conflict and r.name in m.values:
-                    values.setdefault(m.slot.unit, []).append((slot, float(m.values[r.name])))
-            for o in find_outliers(values):
-                outliers.add((o.slot, rnd.name, r.name))
-                found.append(
-                    finding(
-                        Kind.OUTLIER_SUBSAMPLE,
-                        f"{r.header} {o.value:g} in round {rnd.name} is far from the "
-                        f"other {plan.spec.design.subsample_name}s of {o.unit} (median {o.median:g}; "
-                        f"score {o.score:.1f}, flagged above 4)",
-                        code=o.slot,
-                        unit=o.unit,
-                        column=r.header,
-                        value=o.value,
-                    )
-                )
-            means = {u: float(np.mean([v for _, v in vs])) for u, vs in values.items()}
-            for s in find_swaps(plan, means):
-                pair_hits.setdefault((s.first, s.second, rnd.name), []).append(f"{r.header} (score {s.score:.0f})")
-    for (a, b, rname), hits in pair_hits.items():
-        swaps |= {(a, rname), (b, rname)}
-        found.append(
-            finding(
-                Kind.POSSIBLE_SWAP,
-                f"{a} and {b} in round {rname}: their data fit each other's treatment far "
-                f"better than their own in {', '.join(hits)}; check their labels and sheets",
-                code=a,
-                unit=a,
-                value=b,
-                suggestion=f"compare the labels of {a} and {b}",
-            )
-        )
-    return found, outliers, swaps
 
 
 def _summary(

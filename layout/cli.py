@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from collections import Counter
 from collections.abc import Callable, Sequence
@@ -166,19 +167,20 @@ def print_check_summary(result: CheckResult, written: list[Path]) -> None:
     table = Table()
     for col in ("kind", "severity", "count"):
         table.add_column(col, justify="right" if col == "count" else "left")
-    sev = {f.kind.value: f.severity.value for f in result.findings}
-    for kind, n in s["by_kind"].items():
-        table.add_row(kind, sev[kind], str(n))
-    if s["by_kind"]:
+    rank = {"error": 0, "warning": 1, "info": 2}
+    counts = Counter((f.severity.value, f.kind.value) for f in result.findings)
+    for (severity, kind), n in sorted(counts.items(), key=lambda kv: (rank[kv[0][0]], kv[0][1])):
+        table.add_row(kind, severity, str(n))
+    if counts:
         out.print(table)
     ranked = sorted(result.findings, key=lambda f: f.severity is not Severity.ERROR)
-    first = [f for f in ranked if f.severity is not Severity.INFO][:12]
+    first = [f for f in ranked if f.severity is not Severity.INFO and not f.cause][:12]
     for f in first:
         out.print(
             f"{f.severity.value}: {f.where + ': ' if f.where else ''}{f.message}",
             style="red" if f.severity is Severity.ERROR else "yellow",
         )
-    rest = len([f for f in result.findings if f.severity is not Severity.INFO]) - len(first)
+    rest = len([f for f in result.findings if f.severity is not Severity.INFO and not f.cause]) - len(first)
     if rest > 0:
         out.print(f"... and {rest} more in report.html")
     errors = s["by_severity"]["error"]
@@ -199,14 +201,23 @@ def _check(args: argparse.Namespace) -> int:
         result = check_returns(plan, args.returned, progress=lambda step: status.update(step))
     folder = Path(args.output) if args.output else Path(args.plan).parent / "checked"
     written = write_report(plan, result, folder, force=args.force, unblind=args.unblind)
+    unread = [
+        f
+        for f in result.summary["files"]
+        if f.get("status") == "unreadable" or str(f.get("status", "")).startswith("same as")
+    ]
+    # the code is settled before anything is printed, so a closed pipe cannot change it
+    args.exit_code = 2 if len(unread) == len(result.summary["files"]) else (1 if result.errors else 0)
     print_check_summary(result, written)
+    if args.exit_code == 2:
+        err.print("error: not one of the returned files could be read; the report says why", style="red")
     if plan.spec.study.blind:
         out.print(
             "This study is blind: tidy.csv names each unit's treatment. Keep it with the study lead, "
             "away from the people who collect and measure.",
             style="bold",
         )
-    return 1 if result.errors else 0
+    return int(args.exit_code)
 
 
 def _demo(args: argparse.Namespace) -> int:
@@ -333,6 +344,11 @@ def main(argv: Sequence[str] | None = None) -> int:
     run: Callable[[argparse.Namespace], int] = args.run
     try:
         return run(args)
+    except BrokenPipeError:
+        # the reader went away (`| head`): the exit code is still the command's own
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return int(getattr(args, "exit_code", 0))
     except LayoutError as exc:
         for line in exc.lines():
             err.print(f"error: {line}", style="red", soft_wrap=True)

@@ -104,3 +104,66 @@ class TestApi:
         findings, tidy = layout.check_returns(rcbd_plan, [filled])
         assert isinstance(tidy, pd.DataFrame) and len(tidy) == len(rcbd_plan.slots) * 2
         assert all(f.severity.value != "error" for f in findings)
+
+
+class TestSummaryAndPipes:
+    def test_counts_per_kind_and_severity(self, tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+        """missing-column has a warning row (one file lacks a column) and an error row (no file has another)."""
+        from layout import loads_spec, make_plan
+        from tests.published import flatworm_fill
+        from tests.test_identity import SPEC
+
+        spec = SPEC.replace("min = 0\n", 'min = 0\n[[response]]\nname = "crust"\nkind = "number"\n')
+        plan = make_plan(loads_spec(spec, "s.toml"))
+        plan_path = plan.save(tmp_path / "plan.json")
+        typed = tmp_path / "typed.csv"
+        typed.write_text("code,density\n" + "".join(f"{c},{v}\n" for c, _, v in flatworm_fill(plan)), encoding="utf-8")
+        capsys.readouterr()
+        assert main(["check", str(plan_path), str(typed), "-o", str(tmp_path / "r")]) == 1
+        lines = [ln for ln in capsys.readouterr().out.splitlines() if "missing-column" in ln and "│" in ln]
+        assert any("error" in ln for ln in lines) and any("warning" in ln for ln in lines)
+
+    def test_exit_code_same_in_a_pipe(self, setup: tuple[Path, Path], tmp_path: Path) -> None:
+        """`layout check ... | head -1` exits as the command does alone (1 here), with no traceback."""
+        import subprocess
+        import sys
+
+        plan, filled = setup
+        bad = tmp_path / "bad.csv"
+        bad.write_text("code,round,moisture (%)\nIRR7-001-1Q,june,12\n", encoding="utf-8")
+        cmd = [sys.executable, "-m", "layout", "check", str(plan), str(filled), str(bad), "--force", "-o"]
+        alone = subprocess.run([*cmd, str(tmp_path / "a")], capture_output=True, text=True)
+        piped = subprocess.run(
+            f"{' '.join(cmd)} {tmp_path / 'b'} | head -1; exit ${{PIPESTATUS[0]}}",
+            shell=True,
+            executable="/bin/bash",
+            capture_output=True,
+            text=True,
+        )
+        assert alone.returncode == piped.returncode == 1
+        assert "Traceback" not in piped.stderr
+
+    def test_nothing_readable_exits_2_with_a_report(self, setup: tuple[Path, Path], tmp_path: Path) -> None:
+        """When not one return can be read the exit code is 2, and report.json still says why."""
+        plan, _ = setup
+        junk = tmp_path / "junk.xlsx"
+        junk.write_bytes(b"this is not a workbook")
+        assert main(["check", str(plan), str(junk), "-o", str(tmp_path / "r")]) == 2
+        report = json.loads((tmp_path / "r" / "report.json").read_text())
+        kinds = [f["kind"] for f in report["findings"]]
+        assert kinds.count("unreadable-file") == 1
+        followers = [f for f in report["findings"] if f["cause"]]
+        assert followers and all(f["kind"] in ("missing-unit", "missing-slot") for f in followers)
+        assert str(len(followers)) in next(f["message"] for f in report["findings"] if f["kind"] == "unreadable-file")
+
+    def test_same_file_twice_is_read_once(self, setup: tuple[Path, Path], tmp_path: Path) -> None:
+        """The same workbook given twice gives one finding about the file, not a duplicate per row."""
+        import shutil
+
+        plan, filled = setup
+        copy = tmp_path / "copy.xlsx"
+        shutil.copy(filled, copy)
+        main(["check", str(plan), str(filled), str(copy), "-o", str(tmp_path / "r")])
+        report = json.loads((tmp_path / "r" / "report.json").read_text())
+        dups = [f for f in report["findings"] if f["kind"] == "duplicate-slot"]
+        assert len(dups) == 1 and dups[0]["file"] == str(copy) and dups[0]["code"] is None

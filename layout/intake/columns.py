@@ -6,7 +6,7 @@ from dataclasses import dataclass, field
 
 from layout.intake.findings import Finding, Kind, Severity, finding
 from layout.intake.readers import ReturnedTable
-from layout.intake.values import is_blank
+from layout.intake.values import close_to, is_blank
 from layout.names import ALIASES, STRUCTURE_COLUMNS, normal
 from layout.plan import Plan
 
@@ -36,17 +36,25 @@ def _roles(plan: Plan) -> dict[str, tuple[str, str]]:
     return roles
 
 
+def _squash(text: str) -> str:
+    return "".join(ch for ch in text.lower() if ch not in " _-")
+
+
 def map_columns(table: ReturnedTable, plan: Plan) -> tuple[Columns, list[Finding]]:
     """The roles of the file's columns, and findings for missing and added ones."""
     roles = _roles(plan)
+    squashed: dict[str, tuple[str, str]] = {}
+    for k, v in roles.items():
+        squashed.setdefault(_squash(k), v)
     cols = Columns()
     found: list[Finding] = []
     at = {"file": table.file, "row": table.header_row}
     taken: set[tuple[str, str]] = set()
     for i, header in enumerate(table.headers):
         key = normal(header)
-        # an alias never takes a column that a declared response owns ("notes" as a response stays a response)
-        role = roles.get(key) or roles.get(ALIASES.get(key, key))
+        # an alias never takes a column that a declared response owns ("notes" as a response stays a response);
+        # a header that differs only in case, spaces or underscores ("Weed count") is the same column
+        role = roles.get(key) or roles.get(ALIASES.get(key, key)) or squashed.get(_squash(key))
         if role and role not in taken:  # a second column of the same name counts as added
             taken.add(role)
             kind, name = role
@@ -63,11 +71,14 @@ def map_columns(table: ReturnedTable, plan: Plan) -> tuple[Columns, list[Finding
         if not str(header).strip() and all(is_blank(r[i] if i < len(r) else None) for _, r in table.rows):
             continue  # an empty column without a header is nothing
         cols.extras[name] = i
+        meant = close_to(name, [h for h, (kind, _) in roles.items() if kind != "structure" or h in STRUCTURE_COLUMNS])
         found.append(
             finding(
                 Kind.EXTRA_COLUMN,
-                f"column {name!r} is not in the plan; its values are carried into tidy.csv",
+                f"column {name!r} is not in the plan; its values are carried into tidy.csv"
+                + (f"; did you mean {meant!r}?" if meant else ""),
                 column=name,
+                suggestion=meant,
                 **at,
             )
         )

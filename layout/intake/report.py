@@ -113,6 +113,20 @@ def _strip_plots(plan: Plan, result: CheckResult, unblind: bool) -> list[dict[st
     return plots
 
 
+def _grouped(findings: list[Any]) -> list[tuple[Any, list[Any]]]:
+    """Findings errors first, each with the findings that follow from it (missing slots of an unusable file)."""
+    followers: dict[str, list[Any]] = {}
+    for f in findings:
+        if f.cause:
+            followers.setdefault(f.cause, []).append(f)
+    out: list[tuple[Any, list[Any]]] = []
+    for f in sorted((f for f in findings if not f.cause), key=_severity_rank):
+        cause = next((c for c in followers if f.file and f.file in c.split("; ")), None)
+        out.append((f, followers.pop(cause) if cause else []))
+    out += [(f, []) for rest in followers.values() for f in rest]
+    return out
+
+
 def report_html(plan: Plan, result: CheckResult, unblind: bool = False) -> str:
     """The human report: summary, findings, completeness map and strip plots."""
     cells, is_grid = map_cells(plan)
@@ -127,7 +141,7 @@ def report_html(plan: Plan, result: CheckResult, unblind: bool = False) -> str:
             version=__version__,
             css=stylesheet("print.css"),
             summary=result.summary,
-            findings=sorted(result.findings, key=_severity_rank),
+            findings=_grouped(result.findings),
             rounds=[r.name for r in plan.rounds],
             cells=cells,
             is_grid=is_grid,

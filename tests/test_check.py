@@ -474,6 +474,19 @@ class TestEveryFinding:
         tidy = result.tidy.set_index(["code", "round"])
         assert tidy.loc[(code, "r1"), "moisture"] == 12.5
 
+    def test_formula_cell_in_ods_and_xls(self, plan: Plan, filled: Path, soffice: str, tmp_path: Path) -> None:
+        """.ods keeps formulas where layout finds them; .xls cannot say, and the check says so once."""
+        values = simulate(plan)
+        code = first_good(plan, values)
+        path = edited(filled, tmp_path / "f.xlsx", _set(lambda p, v: code, "moisture (%)", "=10+2.5")(plan, values))
+        ods = libreoffice_convert(soffice, path, "ods", tmp_path / "ods")
+        result = check_returns(plan, [ods])
+        assert ("formula-cell", code) in kinds(result) and errors(result) == set()
+        xls = libreoffice_convert(soffice, path, "xls", tmp_path / "xls")
+        result = check_returns(plan, [xls])
+        notes = [f for f in result.findings if f.kind is Kind.FORMULA_CELL]
+        assert len(notes) == 1 and notes[0].severity is Severity.INFO and notes[0].code is None
+
 
 class TestSeveralFiles:
     def test_conflict_across_files_names_both(self, plan: Plan, filled: Path, tmp_path: Path) -> None:

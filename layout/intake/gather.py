@@ -129,6 +129,16 @@ def _rows_of(plan: Plan, idx: PlanIndex, table: ReturnedTable, record: dict[str,
     if blocked:
         record["status"] = "not placed"
         return
+    if table.formulas_unknown:
+        out.findings.append(
+            finding(
+                Kind.FORMULA_CELL,
+                "in this binary workbook format layout cannot tell formulas from typed values; the last computed "
+                "values were read (save it as .xlsx or .ods to have formulas found)",
+                Severity.INFO,
+                file=name,
+            )
+        )
     entries, unmatched, found = check_rows(table, cols, idx)
     out.entries += entries
     out.unmatched += unmatched

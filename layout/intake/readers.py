@@ -37,6 +37,7 @@ class ReturnedTable:
     formulas: set[tuple[int, int]] = field(default_factory=set)
     decimal_comma: bool = False
     sheet: str | None = None
+    formulas_unknown: bool = False
 
 
 def _unreadable(p: Path, message: str) -> UnreadableFile:
@@ -51,8 +52,17 @@ def read_returned(path: str | Path) -> ReturnedTable:
     suffix = p.suffix.lower()
     if suffix in (".xlsx", ".xlsm"):
         return _read_xlsx(p)
-    if suffix in (".ods", ".xls", ".xlsb"):
-        return _read_book(p, formulas=False)
+    if suffix == ".ods":
+        table = _read_book(p, formulas=False)
+        try:
+            table.formulas = ods_formula_cells(p, table.sheet or "")
+        except Exception:  # the values were read; only the formula warning is lost
+            table.formulas = set()
+        return table
+    if suffix in (".xls", ".xlsb"):
+        table = _read_book(p, formulas=False)
+        table.formulas_unknown = True  # the binary formats keep formulas where no reader here looks
+        return table
     if suffix in (".csv", ".txt", ".tsv"):
         return _read_csv(p)
     raise _unreadable(p, f"not a workbook or CSV file (ending {suffix or 'none'}); return .xlsx, .ods or .csv files")
@@ -160,3 +170,39 @@ def _read_csv(p: Path) -> ReturnedTable:
     offset = table.header_row
     table.rows = [(numbers[offset + i], r) for i, (_, r) in enumerate(table.rows)]
     return table
+
+
+_ODS_TABLE = "{urn:oasis:names:tc:opendocument:xmlns:table:1.0}"
+
+
+def ods_formula_cells(p: Path, sheet: str) -> set[tuple[int, int]]:
+    """(row, column index) of every formula cell of an OpenDocument sheet, from content.xml (defusedxml)."""
+    from defusedxml.ElementTree import iterparse
+
+    found: set[tuple[int, int]] = set()
+    with zipfile.ZipFile(p) as z, z.open("content.xml") as fh:
+        in_sheet = False
+        row = 0
+        for event, el in iterparse(fh, events=("start", "end")):
+            tag = el.tag
+            if tag == f"{_ODS_TABLE}table":
+                if event == "start":
+                    in_sheet = el.get(f"{_ODS_TABLE}name") == sheet
+                    row = 0
+                elif in_sheet:
+                    break
+            elif in_sheet and tag == f"{_ODS_TABLE}table-row" and event == "end":
+                repeat = int(el.get(f"{_ODS_TABLE}number-rows-repeated", "1"))
+                col = 0
+                for cell in el:
+                    if cell.tag not in (f"{_ODS_TABLE}table-cell", f"{_ODS_TABLE}covered-table-cell"):
+                        continue
+                    span = int(cell.get(f"{_ODS_TABLE}number-columns-repeated", "1"))
+                    if cell.get(f"{_ODS_TABLE}formula") is not None:
+                        found |= {
+                            (row + 1 + r, col + c) for r in range(min(repeat, 1000)) for c in range(min(span, 1000))
+                        }
+                    col += span
+                row += repeat
+                el.clear()
+    return found

@@ -148,12 +148,14 @@ def completeness(plan: Plan, merged: dict[Key, Merged]) -> list[Finding]:
         ]
         needed = [n for n in blank if responses[n].required]
         if m.reason:
-            if blank:
+            # the reason speaks for the blank required values (or for all, when nothing was entered)
+            declared = needed or (blank if not m.values else [])
+            if declared:
                 found.append(
                     finding(
                         Kind.DECLARED_MISSING,
-                        f"{', '.join(responses[b].header for b in blank)} missing: {m.reason}",
-                        column=responses[blank[0]].header,
+                        f"{', '.join(responses[b].header for b in declared)} missing: {m.reason}",
+                        column=responses[declared[0]].header,
                         value=m.reason,
                         **where,
                     )

@@ -168,3 +168,23 @@ class TestCellByCell:
         row = result.tidy.set_index(["code", "round"]).loc[(code, rnd)]
         assert row["status"] == "conflict" and f"{v + 1:g}" in row["raw"]
         assert not pd.isna(row["y"])
+
+
+class TestSuggestions:
+    def test_round_header_and_level_near_misses(self, plan: Plan, values: dict, tmp_path: Path) -> None:
+        """A round typed 'frist' suggests 'first'; a header 'Y ' or 'tag' in other case is the same column."""
+        (code, _), v = next(iter(values.items()))
+        typed = tmp_path / "typed.csv"
+        typed.write_text(f"Code,Round,Y,TAG\n{code},frist,{v!r},x\n", encoding="utf-8")
+        result = check_returns(plan, [typed])
+        rounds = [f for f in result.findings if f.column == "round"]
+        assert [f.suggestion for f in rounds] == ["first"]
+        assert not [f for f in result.findings if f.kind is Kind.EXTRA_COLUMN]
+
+    def test_header_one_edit_away_is_suggested(self, plan: Plan, values: dict, tmp_path: Path) -> None:
+        """A header one letter off ('yy') is an added column whose finding suggests the planned one."""
+        (code, rnd), v = next(iter(values.items()))
+        typed = tmp_path / "typed.csv"
+        typed.write_text(f"code,round,y,tagg\n{code},{rnd},{v!r},x\n", encoding="utf-8")
+        extra = [f for f in check_returns(plan, [typed]).findings if f.kind is Kind.EXTRA_COLUMN]
+        assert [f.suggestion for f in extra] == ["tag"]

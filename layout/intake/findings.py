@@ -84,12 +84,13 @@ class Finding:
 
     @property
     def where(self) -> str:
-        """'file, row n, column c' as far as known."""
+        """'file, row n, code X, column c' as far as known."""
         parts = [
             p
             for p in (
                 self.file,
                 f"row {self.row}" if self.row else None,
+                f"code {self.code}" if self.code else None,
                 f"column {self.column!r}" if self.column else None,
             )
             if p

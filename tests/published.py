@@ -99,3 +99,10 @@ def two_round_values(plan: Plan) -> dict[tuple[str, str], float]:
         out[(s.code, first)] = c[(food[u.treatment], u.block, s.subsample)]
         out[(s.code, second)] = ag[(food[u.treatment], (u.block - 1) * 3 + s.subsample)]
     return out
+
+
+def nist_values(name: str) -> list[float]:
+    """The responses of a NIST StRD one-way ANOVA file (tests/reference/nist_anova/NAME.dat), in file order."""
+    lines = (REFERENCE / "nist_anova" / f"{name}.dat").read_text(encoding="utf-8").splitlines()
+    start = max(i for i, line in enumerate(lines) if line.startswith("Data:"))  # the second "Data:" heads the values
+    return [float(p[1]) for p in (line.split() for line in lines[start + 1 :]) if len(p) == 2]

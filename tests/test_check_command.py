@@ -11,7 +11,8 @@ from layout import Plan
 from layout.cli import main
 from layout.intake.findings import Kind
 from layout.outputs.workbook import workbook_bytes
-from layout.simulate import fill_workbook, simulate
+from layout.simulate import Filled, fill_workbook
+from tests.published import nist_values
 
 
 @pytest.fixture()
@@ -19,7 +20,14 @@ def setup(tmp_path: Path, rcbd_plan: Plan) -> tuple[Path, Path]:
     plan_path = rcbd_plan.save(tmp_path / "plan.json")
     blank = tmp_path / "entry.xlsx"
     blank.write_bytes(workbook_bytes(rcbd_plan))
-    return plan_path, fill_workbook(rcbd_plan, blank, tmp_path / "filled.xlsx", simulate(rcbd_plan))
+    # published values, not invented ones: NIST StRD SmLs02 (moisture) and SmLs01 (nitrate), in file order
+    moisture, nitrate = iter(nist_values("SmLs02")), iter(nist_values("SmLs01"))
+    values = {
+        (s.code, r.name): Filled({"moisture": next(moisture), "nitrate": next(nitrate)}, None)
+        for r in rcbd_plan.rounds
+        for s in rcbd_plan.slots
+    }
+    return plan_path, fill_workbook(rcbd_plan, blank, tmp_path / "filled.xlsx", values)
 
 
 class TestExitCodes:

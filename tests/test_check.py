@@ -74,7 +74,7 @@ rounds = ["r1", "r2"]
 Edit = Callable[[Any, dict[str, int]], None]
 
 
-def simulate(plan: Plan) -> dict[tuple[str, str], Filled]:
+def published_fill(plan: Plan) -> dict[tuple[str, str], Filled]:
     """Filled-in moisture for every slot and round: NIST StRD SmLs01's responses in file order.
 
     (Published values, not invented ones: NIST/ITL Statistical Reference Datasets, SmLs01,
@@ -91,11 +91,11 @@ def plan() -> Plan:
 
 @pytest.fixture(scope="module")
 def filled(plan: Plan, tmp_path_factory: pytest.TempPathFactory) -> Path:
-    """A filled-in entry.xlsx with simulated values (some declared missing)."""
+    """A filled-in entry.xlsx with published values."""
     folder = tmp_path_factory.mktemp("filled")
     blank = folder / "entry.xlsx"
     blank.write_bytes(workbook_bytes(plan))
-    return fill_workbook(plan, blank, folder / "filled.xlsx", simulate(plan))
+    return fill_workbook(plan, blank, folder / "filled.xlsx", published_fill(plan))
 
 
 def edited(filled: Path, target: Path, edit: Edit) -> Path:
@@ -137,11 +137,11 @@ class TestClean:
         assert errors(result) == set()
         assert result.summary["slots_found"] == result.summary["slots_expected"] == len(plan.slots) * 2
         declared = [f for f in result.findings if f.kind is Kind.DECLARED_MISSING]
-        assert len(declared) == sum(1 for f in simulate(plan).values() if f.reason)
+        assert len(declared) == sum(1 for f in published_fill(plan).values() if f.reason)
 
     def test_round_trip_gives_the_simulated_values(self, plan: Plan, filled: Path) -> None:
         """Generate, fill, check: tidy.csv holds exactly the simulated values and reasons."""
-        values = simulate(plan)
+        values = published_fill(plan)
         tidy = check_returns(plan, [filled]).tidy.set_index(["code", "round"])
         for (code, rnd), f in values.items():
             row = tidy.loc[(code, rnd)]
@@ -438,7 +438,7 @@ class TestEveryFinding:
         self, plan: Plan, filled: Path, tmp_path: Path, name: str, make: Callable, kind: str, expect_code: Callable
     ) -> None:
         """One injected fault: its finding (kind and code) is reported, and no other error."""
-        values = simulate(plan)
+        values = published_fill(plan)
         path = edited(filled, tmp_path / f"{name}.xlsx", make(plan, values))
         result = check_returns(plan, [path])
         code = expect_code(plan, values)
@@ -448,7 +448,7 @@ class TestEveryFinding:
 
     def test_bad_code_suggests_the_planned_code(self, plan: Plan, filled: Path, tmp_path: Path) -> None:
         """A code with one wrong character is reported with the planned code as suggestion."""
-        values = simulate(plan)
+        values = published_fill(plan)
         path = edited(filled, tmp_path / "typo.xlsx", _append_copy(_typo)(plan, values))
         bad = next(f for f in check_returns(plan, [path]).findings if f.kind is Kind.BAD_CODE)
         assert first_good(plan, values) in (bad.suggestion or "").split(" or ")
@@ -466,7 +466,7 @@ class TestEveryFinding:
         other = make_plan(loads_spec(SPEC, "check.toml"), seed=12)
         blank = tmp_path / "other.xlsx"
         blank.write_bytes(workbook_bytes(other))
-        path = fill_workbook(other, blank, tmp_path / "other-filled.xlsx", simulate(other))
+        path = fill_workbook(other, blank, tmp_path / "other-filled.xlsx", published_fill(other))
         result = check_returns(plan, [filled, path])
         assert ("wrong-plan", None) in errors(result)
         assert errors(result) == {("wrong-plan", None)}
@@ -476,7 +476,7 @@ class TestEveryFinding:
 
         LibreOffice Calc recomputes and stores the formula's value, as any spreadsheet program does on save.
         """
-        values = simulate(plan)
+        values = published_fill(plan)
         code = first_good(plan, values)
         path = edited(filled, tmp_path / "f.xlsx", _set(lambda p, v: code, "moisture (%)", "=10+2.5")(plan, values))
         resaved = libreoffice_convert(soffice, path, "xlsx", tmp_path / "lo")
@@ -488,7 +488,7 @@ class TestEveryFinding:
 
     def test_formula_cell_in_ods_and_xls(self, plan: Plan, filled: Path, soffice: str, tmp_path: Path) -> None:
         """.ods keeps formulas where layout finds them; .xls cannot say, and the check says so once."""
-        values = simulate(plan)
+        values = published_fill(plan)
         code = first_good(plan, values)
         path = edited(filled, tmp_path / "f.xlsx", _set(lambda p, v: code, "moisture (%)", "=10+2.5")(plan, values))
         ods = libreoffice_convert(soffice, path, "ods", tmp_path / "ods")
@@ -503,7 +503,7 @@ class TestEveryFinding:
 class TestSeveralFiles:
     def test_conflict_across_files_names_both(self, plan: Plan, filled: Path, tmp_path: Path) -> None:
         """The same slot with different values in an xlsx and a csv is one conflict naming both files and rows."""
-        values = simulate(plan)
+        values = published_fill(plan)
         code = first_good(plan, values)
         other = to_csv(
             edited(filled, tmp_path / "b.xlsx", _set(lambda p, v: code, "moisture (%)", 33.3)(plan, values)),
@@ -536,7 +536,7 @@ class TestLibreOffice:
 class TestNothingLost:
     def test_cells_beyond_the_header_become_added_columns(self, plan: Plan, filled: Path, tmp_path: Path) -> None:
         """A value typed to the right of the last headed column is carried into tidy.csv, with a warning."""
-        values = simulate(plan)
+        values = published_fill(plan)
         code = first_good(plan, values)
 
         def edit(ws: Any, col: dict[str, int]) -> None:
@@ -551,7 +551,7 @@ class TestNothingLost:
 
     def test_unplaced_rows_keep_their_cells(self, plan: Plan, filled: Path, tmp_path: Path) -> None:
         """A row whose code matches nothing stays in tidy.csv as unmatched, with every cell it had."""
-        path = edited(filled, tmp_path / "x.xlsx", _append_copy(_typo)(plan, simulate(plan)))
+        path = edited(filled, tmp_path / "x.xlsx", _append_copy(_typo)(plan, published_fill(plan)))
         tidy = check_returns(plan, [path]).tidy
         unmatched = tidy[tidy["status"] == "unmatched"]
         assert len(unmatched) == 1 and "moisture (%)=" in unmatched["note"].iloc[0]

@@ -139,8 +139,8 @@ class TestClean:
         declared = [f for f in result.findings if f.kind is Kind.DECLARED_MISSING]
         assert len(declared) == sum(1 for f in published_fill(plan).values() if f.reason)
 
-    def test_round_trip_gives_the_simulated_values(self, plan: Plan, filled: Path) -> None:
-        """Generate, fill, check: tidy.csv holds exactly the simulated values and reasons."""
+    def test_round_trip_gives_the_published_values(self, plan: Plan, filled: Path) -> None:
+        """Generate, fill, check: tidy.csv holds exactly the filled-in published values."""
         values = published_fill(plan)
         tidy = check_returns(plan, [filled]).tidy.set_index(["code", "round"])
         for (code, rnd), f in values.items():

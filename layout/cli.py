@@ -12,6 +12,7 @@ from pathlib import Path
 from rich.console import Console
 from rich.table import Table
 
+from layout.cli_stats import add_commands
 from layout.demo import run_demo
 from layout.errors import LayoutError, PlanError, UsageError
 from layout.intake.check import CheckResult, check_returns
@@ -335,6 +336,7 @@ def build_parser() -> argparse.ArgumentParser:
         "--unblind", action="store_true", help="group the report's plots by treatment even for a blind study"
     )
     check.set_defaults(run=_check)
+    add_commands(sub)
     return parser
 
 

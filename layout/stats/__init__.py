@@ -1,0 +1,1 @@
+"""Analysis of the checked data and planning of the next experiment: ANOVA with subsampling, power."""

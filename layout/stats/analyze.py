@@ -1,0 +1,232 @@
+"""layout analyze: for each numeric response and round, the analysis the design and the data allow.
+
+balanced (every planned unit with all its subsamples)  → the ANOVA with subsampling (method "anova");
+unequal subsamples, every unit present                  → ANOVA of the unit means ("unit-means");
+whole units missing                                     → REML through statsmodels when installed
+                                                          ("reml"), else unit means with a warning.
+Category responses get a count table of unit-level summaries and a test of independence.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from layout.plan import Plan, Unit
+from layout.stats.anova import Table, anova, unit_table
+from layout.stats.compare import means_and_pairs
+from layout.stats.components import components
+from layout.stats.terms import factor_names, level_of
+
+UNIT_MEANS_NOTE = (
+    "In balanced data the treatment F from the unit means equals the F of the full ANOVA "
+    "(a fact of the trade: the subsample-to-subsample variation enters both mean squares equally)."
+)
+
+
+def analyze(plan: Plan, tidy: pd.DataFrame, accepted: list[str] | None = None) -> dict[str, Any]:
+    """analysis.json's content: one result per numeric (or category) response and round."""
+    results = []
+    planned = tidy[tidy["status"].fillna("") != "unmatched"]
+    for r in plan.spec.response:
+        if r.kind in ("text", "date"):
+            continue
+        for rnd in plan.rounds:
+            part = planned[(planned["round"].astype(str) == rnd.name)]
+            if r.kind == "category":
+                results.append(_category(plan, r.name, rnd.name, part))
+            else:
+                results.append(_numeric(plan, r.name, rnd.name, part, integer=r.kind == "integer"))
+    return {
+        "format": "layout-analysis/1",
+        "plan": plan.fingerprint,
+        "accepted": accepted or [],
+        "results": results,
+    }
+
+
+def _values(plan: Plan, name: str, part: pd.DataFrame) -> tuple[list[Unit], list[np.ndarray]]:
+    vals = pd.to_numeric(part[name], errors="coerce")
+    by: dict[str, list[float]] = {}
+    for unit, v in zip(part["unit"].astype(str), vals, strict=True):
+        if not pd.isna(v):
+            by.setdefault(unit, []).append(float(v))
+    units = [u for u in plan.units if u.code in by]
+    return units, [np.array(by[u.code]) for u in units]
+
+
+def _numeric(plan: Plan, name: str, rnd: str, part: pd.DataFrame, integer: bool) -> dict[str, Any]:
+    units, values = _values(plan, name, part)
+    notes: list[str] = []
+    if integer:
+        notes.append("an integer response, analysed as numbers")
+    out: dict[str, Any] = {"response": name, "round": rnd, "notes": notes}
+    if len(units) < 3:
+        out.update({"method": "none", "table": []})
+        notes.append("too few units with values to analyse")
+        return out
+    planned = {u.code: len(plan.slots_of[u.code]) for u in plan.units}
+    complete = len(units) == len(plan.units)
+    full = complete and all(len(v) == planned[u.code] for u, v in zip(units, values, strict=True))
+    equal = len({len(v) for v in values}) == 1
+    if full and equal:
+        table = anova(plan, units, values)
+        out["method"] = "anova"
+    else:
+        if not complete:
+            reml = _reml(plan, name, units, values)
+            if reml is not None:
+                out.update(reml)
+                notes.append(
+                    f"{len(plan.units) - len(units)} unit(s) have no values: fitted by REML (statsmodels MixedLM)"
+                )
+                return out
+            notes.append(
+                f"{len(plan.units) - len(units)} unit(s) have no values and statsmodels is not installed: "
+                "analysed on the unit means, which ignores the unequal information (pip install 'layout[reml]')"
+            )
+        else:
+            notes.append("units have unequal numbers of subsamples: analysed on the unit means")
+        table = _unit_means_table(plan, units, values)
+        out["method"] = "unit-means"
+    out["table"] = [row.to_dict() for row in table.rows]
+    out["components"] = components(table) if out["method"] == "anova" else {}
+    out.update(_means(plan, table, units, values))
+    out["unit_means_f"] = _unit_means_f(plan, units, values)
+    if out["method"] == "anova":
+        out["notes"].append(UNIT_MEANS_NOTE)
+    return out
+
+
+def _unit_means_table(plan: Plan, units: list[Unit], values: list[np.ndarray]) -> Table:
+    """The design's ANOVA on one mean per unit (no sampling error row)."""
+    from layout.stats.anova import Row, _tests
+
+    means = np.array([float(np.mean(v)) for v in values])
+    split = plan.spec.design.type == "split-plot"
+    table = Table(subsamples=1, units=len(units))
+    for term, df, ss in unit_table(plan, units, means, 1.0):
+        table.rows.append(Row(term.name if term else ("sub-plot error" if split else "experimental error"), df, ss))
+    total = float(np.sum((means - means.mean()) ** 2))
+    table.rows.append(Row("total", len(units) - 1, total))
+    for r in table.rows:
+        if r.source != "total" and r.df > 0:
+            r.ms = r.ss / r.df
+    for r in table.rows:  # whole-plot sources carry σ²(whole plot), so _tests sends them to the whole-plot error
+        if split and r.source == plan.spec.factor[[f.whole_plot for f in plan.spec.factor].index(True)].name:
+            r.ems = "σ²(whole plot)"
+        if split and r.source == "block":
+            r.ems = "σ²(whole plot)"
+    _tests(table, split)
+    return table
+
+
+def _unit_means_f(plan: Plan, units: list[Unit], values: list[np.ndarray]) -> list[dict[str, Any]]:
+    table = _unit_means_table(plan, units, values)
+    names = set(factor_names(plan)) | {":".join(c) for c in _combos(plan)}
+    return [{"source": r.source, "f": r.f, "p": r.p} for r in table.rows if r.source in names and r.f is not None]
+
+
+def _combos(plan: Plan) -> list[tuple[str, ...]]:
+    from itertools import combinations
+
+    names = factor_names(plan)
+    return [c for k in range(2, len(names) + 1) for c in combinations(names, k)]
+
+
+def _means(plan: Plan, table: Table, units: list[Unit], values: list[np.ndarray]) -> dict[str, Any]:
+    """Means of every treatment factor (and of the treatments) with SE from their error term and Tukey's HSD."""
+    unit_means = {u.code: float(np.mean(v)) for u, v in zip(units, values, strict=True)}
+    names = factor_names(plan)
+    split = plan.spec.design.type == "split-plot"
+    out: dict[str, Any] = {"means": {}}
+    for source in names + (["treatment"] if len(names) > 1 else []):
+        row = table.row(source) if source != "treatment" else None
+        err = table.row(row.error if row and row.error else ("sub-plot error" if split else "experimental error"))
+        if err is None or err.ms is None or err.df <= 0:
+            continue
+        groups: dict[str, list[float]] = {}
+        for u in units:
+            key = u.treatment if source == "treatment" else level_of(u, source)
+            groups.setdefault(key, []).append(unit_means[u.code])
+        per_mean = table.subsamples * min(len(g) for g in groups.values())
+        out["means"][source] = {"error_term": err.source, **means_and_pairs(groups, err.ms, err.df, per_mean)}
+    return out
+
+
+def _reml(plan: Plan, name: str, units: list[Unit], values: list[np.ndarray]) -> dict[str, Any] | None:
+    """Variance components and Wald tests by REML with statsmodels' MixedLM, when it is installed."""
+    try:
+        import statsmodels.formula.api as smf
+    except ImportError:
+        return None
+    rows = []
+    for u, v in zip(units, values, strict=True):
+        for x in v:
+            rec = {"y": float(x), "unit": u.code, "treatment": u.treatment, "block": str(u.block)}
+            rows.append(rec)
+    frame = pd.DataFrame(rows)
+    frame["y"] -= frame["y"].median()
+    formula = "y ~ C(treatment)" + (" + C(block)" if plan.spec.design.type in ("rcbd", "split-plot") else "")
+    try:
+        fit = smf.mixedlm(formula, frame, groups=frame["unit"]).fit(reml=True)
+        wald = fit.wald_test_terms(scalar=True)
+    except Exception as exc:  # a model that does not converge is reported, not raised
+        return {"method": "reml", "table": [], "notes": [f"REML fit failed: {exc}"]}
+    table = [
+        {
+            "source": str(term).replace("C(", "").replace(")", ""),
+            "df": int(res[2]),
+            "chi2": float(res[0]),
+            "p": float(res[1]),
+        }
+        for term, res in zip(wald.table.index, wald.table.values, strict=True)
+        if term != "Intercept"
+    ]
+    return {
+        "method": "reml",
+        "table": table,
+        "components": {
+            "unit": {"estimate": float(fit.cov_re.iloc[0, 0]), "method": "REML (statsmodels MixedLM)"},
+            "subsample": {"estimate": float(fit.scale), "method": "REML (statsmodels MixedLM)"},
+            "notes": [],
+        },
+    }
+
+
+def _category(plan: Plan, name: str, rnd: str, part: pd.DataFrame) -> dict[str, Any]:
+    """Counts of each unit's most frequent level, per treatment, and a test of independence on those units."""
+    levels = next(r.levels for r in plan.spec.response if r.name == name) or ()
+    per_unit: dict[str, str] = {}
+    for unit, group in part.groupby("unit"):
+        vals = [v for v in group[name] if isinstance(v, str) and v]
+        if vals:
+            per_unit[str(unit)] = max(levels, key=lambda lv: (vals.count(lv), -levels.index(lv)))
+    treatments = list(plan.spec.treatments)
+    table = [
+        [sum(1 for u in plan.units if u.treatment == t and per_unit.get(u.code) == lv) for lv in levels]
+        for t in treatments
+    ]
+    out: dict[str, Any] = {
+        "response": name,
+        "round": rnd,
+        "method": "counts",
+        "counts": {"treatments": treatments, "levels": list(levels), "table": table},
+        "notes": [
+            "each unit counted once, by its most frequent level: subsamples are not independent replicates",
+        ],
+    }
+    arr = np.array(table)
+    arr = arr[arr.sum(axis=1) > 0][:, arr.sum(axis=0) > 0]
+    if arr.shape[0] >= 2 and arr.shape[1] >= 2:
+        if arr.shape == (2, 2):
+            res = stats.fisher_exact(arr)
+            out["test"] = {"name": "Fisher's exact test", "p": float(res.pvalue)}
+        else:
+            chi2, p, df, _ = stats.chi2_contingency(arr)
+            out["test"] = {"name": "chi-square test of independence", "chi2": float(chi2), "df": int(df), "p": float(p)}
+            out["notes"].append("few units per cell make the chi-square approximation rough")
+    return out

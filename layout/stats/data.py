@@ -1,0 +1,75 @@
+"""The checked data an analysis may use: tidy.csv with the check's report.json beside it.
+
+An analysis refuses data the check found errors in, or a tidy table of another plan,
+unless the user accepts that on purpose (--accept-errors), which every output then says.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+
+from layout.errors import LayoutError, Problem
+from layout.plan import Plan
+
+
+class Unchecked(LayoutError):
+    """Data the check did not pass; exit 1, like a check with errors."""
+
+    exit_code = 1  # type: ignore[misc]
+
+
+@dataclass
+class Checked:
+    """The tidy table and what the check said about it."""
+
+    tidy: pd.DataFrame
+    folder: Path
+    errors: int = 0
+    accepted: list[str] = field(default_factory=list)  # why the data were taken anyway
+
+
+def load_checked(plan: Plan, where: str | Path, accept_errors: bool = False) -> Checked:
+    """tidy.csv and report.json from check's folder (or beside the tidy.csv given)."""
+    path = Path(where)
+    tidy_path = path / "tidy.csv" if path.is_dir() else path
+    report_path = tidy_path.parent / "report.json"
+    if not tidy_path.is_file():
+        raise LayoutError(Problem(str(tidy_path), "", "no such file; give check's output folder or its tidy.csv"))
+    if not report_path.is_file():
+        raise LayoutError(
+            Problem(str(report_path), "", "no check report beside tidy.csv; run 'layout check' and analyse its folder")
+        )
+    try:
+        report = json.loads(report_path.read_text(encoding="utf-8"))
+        summary = report["summary"]
+        errors = int(summary["by_severity"]["error"])
+        fingerprint = summary["plan"]
+    except (OSError, ValueError, KeyError, TypeError) as exc:
+        raise LayoutError(Problem(str(report_path), "", f"not a check report ({exc})")) from None
+    accepted: list[str] = []
+    if fingerprint != plan.fingerprint:
+        why = f"the check was of plan {str(fingerprint)[:12]}, not this plan {plan.fingerprint[:12]}"
+        if not accept_errors:
+            raise Unchecked(Problem(str(report_path), "summary.plan", why + "; analyse with the plan the check used"))
+        accepted.append(why)
+    if errors:
+        why = f"the check found {errors} error(s)"
+        if not accept_errors:
+            raise Unchecked(
+                Problem(
+                    str(report_path),
+                    "",
+                    why
+                    + "; fix them (or approve fixes) and check again, or pass --accept-errors to analyse what is there",
+                )
+            )
+        accepted.append(why + "; analysed anyway (--accept-errors)")
+    try:
+        tidy = pd.read_csv(tidy_path, dtype=str, keep_default_na=False, na_values=[""])
+    except (OSError, ValueError) as exc:
+        raise LayoutError(Problem(str(tidy_path), "", f"cannot be read as a tidy table ({exc})")) from None
+    return Checked(tidy, tidy_path.parent, errors, accepted)

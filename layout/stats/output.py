@@ -1,0 +1,104 @@
+"""analysis.json, analysis.html and the terminal table of an analysis."""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+from typing import Any, Final
+
+from layout.files import refuse_existing, write_new
+from layout.meta import __version__
+from layout.plan import Plan
+from layout.render import stylesheet, template_env
+
+ANALYSIS_FILES: Final = ("analysis.json", "analysis.html")
+
+
+def _clean(value: Any) -> Any:
+    """JSON-safe: NaN and infinity as null."""
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: _clean(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_clean(v) for v in value]
+    return value
+
+
+def analysis_json(result: dict[str, Any]) -> str:
+    data = {"tool": {"name": "layout", "version": __version__}, **result}
+    return json.dumps(_clean(data), indent=1, ensure_ascii=False) + "\n"
+
+
+def fmt(x: Any, digits: int = 4) -> str:
+    """A number for a table: 4 significant digits, p-values below 0.0001 as '<0.0001'."""
+    if x is None or (isinstance(x, float) and not math.isfinite(x)):
+        return ""
+    if isinstance(x, int):
+        return str(x)
+    return f"{x:.{digits}g}"
+
+
+def _plot(result: dict[str, Any]) -> dict[str, Any] | None:
+    """Treatment means with ±SE bars (SE from the correct error term), as SVG coordinates."""
+    block = result.get("means", {}).get("treatment")
+    if not block:
+        return None
+    means = block["means"]
+    lo = min(m["mean"] - m["se"] for m in means)
+    hi = max(m["mean"] + m["se"] for m in means)
+    span = (hi - lo) or 1.0
+    height, top, left, step = 140, 10, 60, 70
+
+    def y(v: float) -> float:
+        return round(top + height - (v - lo) / span * height, 1)
+
+    points = [
+        {
+            "x": left + i * step + step / 2,
+            "y": y(m["mean"]),
+            "y1": y(m["mean"] + m["se"]),
+            "y2": y(m["mean"] - m["se"]),
+            "label": m["level"],
+        }
+        for i, m in enumerate(means)
+    ]
+    return {
+        "points": points,
+        "width": left + len(means) * step + 10,
+        "height": height + top + 40,
+        "lo": fmt(lo),
+        "hi": fmt(hi),
+        "left": left,
+        "y_lo": top + height,
+        "y_hi": top,
+        "error": block["error_term"],
+    }
+
+
+def analysis_html(plan: Plan, result: dict[str, Any]) -> str:
+    return (
+        template_env()
+        .get_template("analysis.html")
+        .render(
+            study=plan.spec.study,
+            design=plan.spec.design,
+            fingerprint=plan.fingerprint,
+            version=__version__,
+            css=stylesheet("print.css"),
+            result=result,
+            plots=[_plot(r) for r in result["results"]],
+            fmt=fmt,
+        )
+    )
+
+
+def write_analysis(plan: Plan, result: dict[str, Any], folder: str | Path, force: bool = False) -> list[Path]:
+    out = Path(folder)
+    for name in ANALYSIS_FILES:
+        refuse_existing(out / name, force)
+    return [
+        write_new(out / "analysis.json", analysis_json(result), force),
+        write_new(out / "analysis.html", analysis_html(plan, result), force),
+    ]

@@ -12,7 +12,7 @@ from pathlib import Path
 from rich.console import Console
 from rich.table import Table
 
-from layout.cli_stats import add_commands
+from layout.cli_stats import add_commands, print_analysis
 from layout.demo import run_demo
 from layout.errors import LayoutError, PlanError, UsageError
 from layout.intake.check import CheckResult, check_returns
@@ -233,6 +233,25 @@ def _demo(args: argparse.Namespace) -> int:
             "planted mistakes, and checked both:"
         )
         print_check_summary(result.check, [])
+    if result.analysis is not None:
+        out.print(
+            "\nThe re-typed CSV has planted errors, so the workbook alone was checked again (clean) into "
+            f"{result.folder / 'analysis'} and analysed: treatments tested against the experimental error."
+        )
+        print_analysis({"results": result.analysis["results"][:1]})
+    if result.power is not None:
+        response, rnd, grid = result.power
+        rec = grid["recommended"]
+        if rec:
+            out.print(
+                f"Next trial, to detect {grid['difference']:g} in {response} ({rnd}) with power {grid['target']:g}: "
+                f"{rec['units']} units per treatment × {rec['subsamples']} subsamples"
+                + (
+                    f" (cost-optimal s* = {grid['optimal_subsamples']:.1f} at 12 per unit, 1.5 per subsample)"
+                    if grid["optimal_subsamples"]
+                    else ""
+                )
+            )
     if not result.pdf:
         out.print("No PDF engine was found, so no PDFs were made: pip install 'layout[pdf]' or install Chromium.")
     return 0

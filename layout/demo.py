@@ -71,6 +71,8 @@ class DemoResult:
     written: list[Path] = field(default_factory=list)
     pdf: bool = False
     check: Any = None
+    analysis: Any = None
+    power: Any = None
 
 
 def run_demo(folder: str | Path, force: bool = False, progress: bool = False) -> DemoResult:
@@ -89,7 +91,40 @@ def run_demo(folder: str | Path, force: bool = False, progress: bool = False) ->
     result.written += write_sheets(plan, out, options)
     result.pdf = pdf
     result.written += _returns_and_check(plan, out, force, result)
+    result.written += _analysis(plan, out, force, result)
     return result
+
+
+def _analysis(plan: Plan, out: Path, force: bool, result: DemoResult) -> list[Path]:
+    """The re-typed CSV has planted errors; the workbook alone checks clean, so that check is analysed."""
+    from layout.intake.check import check_returns
+    from layout.intake.report import write_report
+    from layout.stats.analyze import analyze
+    from layout.stats.data import load_checked
+    from layout.stats.output import write_analysis
+    from layout.stats.power import power_grid
+
+    clean = check_returns(plan, [out / "returns" / "entry-filled.xlsx"])
+    written = write_report(plan, clean, out / "analysis", force=force)
+    checked = load_checked(plan, out / "analysis")
+    result.analysis = analyze(plan, checked.tidy, checked.accepted)
+    written += write_analysis(plan, result.analysis, out / "analysis", force=force)
+    first = next((r for r in result.analysis["results"] if r.get("components", {}).get("unit")), None)
+    if first is not None:
+        comp = first["components"]
+        result.power = (
+            first["response"],
+            first["round"],
+            power_grid(
+                len(plan.spec.treatments),
+                comp["unit"]["estimate"],
+                comp["subsample"]["estimate"],
+                20.0,
+                cost_unit=12.0,
+                cost_sub=1.5,
+            ),
+        )
+    return written
 
 
 # A second person re-typed three rows from their paper sheet: one agrees, one disagrees,
@@ -114,7 +149,9 @@ def _returns_and_check(plan: Plan, out: Path, force: bool, result: DemoResult) -
     from layout.intake.report import write_report
     from layout.simulate import fill_workbook, simulate
 
-    filled = simulate(plan)
+    # round day14 complete (so its analysis is the full ANOVA with subsampling); day28 with a few declared missing
+    complete = simulate(plan, missing_share=0.0)
+    filled = {k: (complete[k] if k[1] == plan.rounds[0].name else v) for k, v in simulate(plan).items()}
     returns = out / "returns"
     written = [
         fill_workbook(plan, out / "entry.xlsx", returns / "entry-filled.xlsx", filled, force=force),

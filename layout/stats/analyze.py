@@ -98,7 +98,30 @@ def _numeric(plan: Plan, name: str, rnd: str, part: pd.DataFrame, integer: bool)
     out["unit_means_f"] = _unit_means_f(plan, units, values)
     if out["method"] == "anova":
         out["notes"].append(UNIT_MEANS_NOTE)
+        out["power"] = _next_trial(plan, out)
     return out
+
+
+def _next_trial(plan: Plan, out: dict[str, Any]) -> dict[str, Any] | None:
+    """Power for the next trial from this one's variance components, to detect this trial's Tukey HSD."""
+    comp = out.get("components") or {}
+    block = next(iter(out.get("means", {}).values()), None)
+    if "unit" not in comp or "subsample" not in comp or block is None or not block["tukey"]["hsd"]:
+        return None
+    from layout.stats.power import power_grid
+
+    design = "rcbd" if plan.spec.design.type == "rcbd" else "crd"
+    grid = power_grid(
+        len(block["means"]),
+        comp["unit"]["estimate"],
+        comp["subsample"]["estimate"],
+        block["tukey"]["hsd"],
+        units=range(2, 13),
+        subsamples=range(1, 9),
+        design=design,
+    )
+    grid["note"] = "the difference is this trial's Tukey HSD, the smallest difference it could call significant"
+    return grid
 
 
 def _unit_means_table(plan: Plan, units: list[Unit], values: list[np.ndarray]) -> Table:
@@ -152,9 +175,15 @@ def _means(plan: Plan, table: Table, units: list[Unit], values: list[np.ndarray]
         for u in units:
             key = u.treatment if source == "treatment" else level_of(u, source)
             groups.setdefault(key, []).append(unit_means[u.code])
+        order = list(plan.spec.treatments) if source == "treatment" else _level_order(plan, source)
+        groups = {k: groups[k] for k in sorted(groups, key=lambda k: order.index(k) if k in order else len(order))}
         per_mean = table.subsamples * min(len(g) for g in groups.values())
         out["means"][source] = {"error_term": err.source, **means_and_pairs(groups, err.ms, err.df, per_mean)}
     return out
+
+
+def _level_order(plan: Plan, source: str) -> list[str]:
+    return list(next((f.levels for f in plan.spec.factor if f.name == source), plan.spec.treatments))
 
 
 def _reml(plan: Plan, name: str, units: list[Unit], values: list[np.ndarray]) -> dict[str, Any] | None:

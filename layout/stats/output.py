@@ -42,7 +42,8 @@ def fmt(x: Any, digits: int = 4) -> str:
 
 def _plot(result: dict[str, Any]) -> dict[str, Any] | None:
     """Treatment means with ±SE bars (SE from the correct error term), as SVG coordinates."""
-    block = result.get("means", {}).get("treatment")
+    means_blocks = result.get("means", {})
+    block = means_blocks.get("treatment") or next(iter(means_blocks.values()), None)
     if not block:
         return None
     means = block["means"]
@@ -77,6 +78,44 @@ def _plot(result: dict[str, Any]) -> dict[str, Any] | None:
     }
 
 
+def _heat(result: dict[str, Any]) -> dict[str, Any] | None:
+    """The power grid as cells of a heat map: darker is more power, the value printed in each cell."""
+    grid = result.get("power")
+    if not grid:
+        return None
+    units = sorted({g["units"] for g in grid["grid"]})
+    subs = sorted({g["subsamples"] for g in grid["grid"]})
+    power = {(g["units"], g["subsamples"]): g["power"] for g in grid["grid"]}
+    size, left, top = 30, 70, 24
+    cells = []
+    for i, n in enumerate(units):
+        for j, s in enumerate(subs):
+            p = power[(n, s)]
+            shade = int(245 - 200 * (p if p == p else 0))
+            cells.append(
+                {
+                    "x": left + j * size,
+                    "y": top + i * size,
+                    "fill": f"rgb({shade},{shade},{min(255, shade + 30)})",
+                    "text": "1" if p >= 0.995 else f"{p:.2f}"[1:],
+                    "dark": p > 0.55,
+                }
+            )
+    return {
+        "cells": cells,
+        "size": size,
+        "left": left,
+        "top": top,
+        "units": [{"y": top + i * size + size / 2 + 3, "n": n} for i, n in enumerate(units)],
+        "subs": [{"x": left + j * size + size / 2, "s": s} for j, s in enumerate(subs)],
+        "width": left + len(subs) * size + 10,
+        "height": top + len(units) * size + 30,
+        "difference": grid["difference"],
+        "note": grid["note"],
+        "target": grid["target"],
+    }
+
+
 def analysis_html(plan: Plan, result: dict[str, Any]) -> str:
     return (
         template_env()
@@ -89,6 +128,7 @@ def analysis_html(plan: Plan, result: dict[str, Any]) -> str:
             css=stylesheet("print.css"),
             result=result,
             plots=[_plot(r) for r in result["results"]],
+            heats=[_heat(r) for r in result["results"]],
             fmt=fmt,
         )
     )

@@ -90,7 +90,11 @@ def _components_from(path: str, response: str, rnd: str | None) -> tuple[float, 
         raise UsageError(
             f"{path}: {response} round {r.get('round')} has no variance components (method {r.get('method')})"
         )
-    t = len(r["means"]["treatment"]["means"]) if "treatment" in r.get("means", {}) else 2
+    blocks = r.get("means", {})
+    block = blocks.get("treatment") or next(iter(blocks.values()), None)
+    if block is None:
+        raise UsageError(f"{path}: {response} round {r.get('round')} has no treatment means; give --treatments")
+    t = len(block["means"])
     return comp["unit"]["estimate"], comp["subsample"]["estimate"], t, str(r.get("round"))
 
 

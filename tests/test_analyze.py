@@ -385,3 +385,54 @@ class TestPower:
         data = json.loads(capsys.readouterr().out)
         assert {"grid", "recommended", "optimal_subsamples"} <= set(data)
         assert data["recommended"]["power"] >= 0.8
+
+
+class TestMethods:
+    def _tidy(self, plan: Plan, drop_slots: int = 0, drop_units: int = 0) -> pd.DataFrame:
+        d = flatworm_densities()
+        rows = []
+        dropped_units = {u.code for u in plan.units[:drop_units]}
+        for k, s in enumerate(plan.slots):
+            u = plan.unit_by_code[s.unit]
+            if u.code in dropped_units or (k < drop_slots * 6 and s.subsample == 6):
+                continue
+            rows.append(
+                {
+                    "code": s.code,
+                    "unit": u.code,
+                    "round": "1",
+                    "status": "ok",
+                    "density": d[(u.treatment, u.replicate, s.subsample)],
+                }
+            )
+        return pd.DataFrame(rows)
+
+    def test_unequal_subsamples_analysed_on_unit_means(self) -> None:
+        """With a subsample lost in some units (every unit present), the analysis is on the unit means and says so;
+        its F equals a one-way ANOVA of the unit means by scipy."""
+        plan = make_plan(loads_spec(FLATWORM_SPEC, "s.toml"))
+        tidy = self._tidy(plan, drop_slots=2)
+        (r,) = analyze(plan, tidy)["results"]
+        assert r["method"] == "unit-means" and any("unit means" in n for n in r["notes"])
+        means: dict[str, list[float]] = {}
+        for unit, group in tidy.groupby("unit"):
+            means.setdefault(plan.unit_by_code[unit].treatment, []).append(group["density"].mean())
+        ref = stats.f_oneway(*means.values())
+        assert r["table"][0]["f"] == pytest.approx(ref.statistic, rel=1e-10)
+
+    def test_missing_units_by_reml(self) -> None:
+        """With a whole unit missing, REML through statsmodels is used and named."""
+        plan = make_plan(loads_spec(FLATWORM_SPEC.replace("replicates = 3", "replicates = 3"), "s.toml"))
+        (r,) = analyze(plan, self._tidy(plan, drop_units=1))["results"]
+        assert r["method"] == "reml" and any("REML" in n for n in r["notes"])
+        assert r["components"]["subsample"]["estimate"] > 0
+
+    def test_category_counts_units_not_subsamples(self) -> None:
+        """A category response is counted once per unit (its commonest level) and tested on those counts."""
+        spec = FLATWORM_SPEC + '[[response]]\nname = "cover"\nkind = "category"\nlevels = ["bare", "algae"]\n'
+        plan = make_plan(loads_spec(spec, "s.toml"))
+        tidy = self._tidy(plan)
+        tidy["cover"] = ["algae" if x > 1 else "bare" for x in tidy["density"]]
+        cat = next(r for r in analyze(plan, tidy)["results"] if r["response"] == "cover")
+        assert cat["method"] == "counts" and sum(map(sum, cat["counts"]["table"])) == len(plan.units)
+        assert "test" in cat and 0 <= cat["test"]["p"] <= 1

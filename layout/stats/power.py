@@ -48,8 +48,8 @@ def power_grid(
     target: float = 0.8,
     cost_unit: float | None = None,
     cost_sub: float | None = None,
-    units: range = range(2, 21),
-    subsamples: range = range(1, 11),
+    units: range = range(2, 17),
+    subsamples: range = range(1, 9),
     design: str = "crd",
 ) -> dict[str, Any]:
     """The grid, the cheapest plan reaching the target power (or the fewest observations), and s*."""

@@ -179,6 +179,13 @@ def _means(plan: Plan, table: Table, units: list[Unit], values: list[np.ndarray]
         groups = {k: groups[k] for k in sorted(groups, key=lambda k: order.index(k) if k in order else len(order))}
         per_mean = table.subsamples * min(len(g) for g in groups.values())
         out["means"][source] = {"error_term": err.source, **means_and_pairs(groups, err.ms, err.df, per_mean)}
+        if "points" not in out and sum(len(v) for v in values) <= 5000:
+            # for the plot: each level's unit means and subsample values
+            subs: dict[str, list[float]] = {}
+            for u, v in zip(units, values, strict=True):
+                key = u.treatment if source == "treatment" else level_of(u, source)
+                subs.setdefault(key, []).extend(float(x) for x in v)
+            out["points"] = {"source": source, "units": groups, "subsamples": subs}
     return out
 
 

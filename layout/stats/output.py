@@ -41,32 +41,41 @@ def fmt(x: Any, digits: int = 4) -> str:
 
 
 def _plot(result: dict[str, Any]) -> dict[str, Any] | None:
-    """Treatment means with ±SE bars (SE from the correct error term), as SVG coordinates."""
-    means_blocks = result.get("means", {})
-    block = means_blocks.get("treatment") or next(iter(means_blocks.values()), None)
-    if not block:
+    """Per level: subsample values (small grey), unit means (open circles), the mean ± SE of the correct error."""
+    points = result.get("points")
+    if not points:
         return None
+    block = result["means"][points["source"]]
     means = block["means"]
-    lo = min(m["mean"] - m["se"] for m in means)
-    hi = max(m["mean"] + m["se"] for m in means)
+    every = [x for v in points["subsamples"].values() for x in v] + [
+        m["mean"] + s * m["se"] for m in means for s in (-1, 1)
+    ]
+    lo, hi = min(every), max(every)
     span = (hi - lo) or 1.0
-    height, top, left, step = 140, 10, 60, 70
+    height, top, left, step = 160, 10, 60, 80
 
     def y(v: float) -> float:
         return round(top + height - (v - lo) / span * height, 1)
 
-    points = [
-        {
-            "x": left + i * step + step / 2,
-            "y": y(m["mean"]),
-            "y1": y(m["mean"] + m["se"]),
-            "y2": y(m["mean"] - m["se"]),
-            "label": m["level"],
-        }
-        for i, m in enumerate(means)
-    ]
+    levels = []
+    for i, m in enumerate(means):
+        x = left + i * step + step / 2
+        levels.append(
+            {
+                "x": x,
+                "y": y(m["mean"]),
+                "y1": y(m["mean"] + m["se"]),
+                "y2": y(m["mean"] - m["se"]),
+                "label": m["level"],
+                "subs": [
+                    {"x": x - 22 + (k % 7) * 2, "y": y(v)}
+                    for k, v in enumerate(points["subsamples"].get(m["level"], []))
+                ],
+                "units": [{"x": x - 8, "y": y(v)} for v in points["units"].get(m["level"], [])],
+            }
+        )
     return {
-        "points": points,
+        "levels": levels,
         "width": left + len(means) * step + 10,
         "height": height + top + 40,
         "lo": fmt(lo),
@@ -75,6 +84,7 @@ def _plot(result: dict[str, Any]) -> dict[str, Any] | None:
         "y_lo": top + height,
         "y_hi": top,
         "error": block["error_term"],
+        "source": points["source"],
     }
 
 

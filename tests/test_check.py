@@ -319,7 +319,7 @@ def _unit_mismatch(plan: Plan, values: dict) -> Edit:
     code, other = first_good(plan, values), _other_unit(plan, values)
 
     def edit(ws: Any, col: dict[str, int]) -> None:
-        ws.cell(row_of(ws, col, code), col["unit"]).value = other
+        ws.cell(row_of(ws, col, code), col["unit (plot)"]).value = other
 
     return edit
 

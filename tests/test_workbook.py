@@ -35,14 +35,15 @@ class TestReadBack:
         assert all(slot_unit[r[0]] == r[1] for r in rows[1:])
 
     def test_header_names(self, rcbd_plan: Plan) -> None:
-        """The header follows the contract: structure, treatment when not blind, responses with units, reason, note."""
+        """The header follows the contract: structure (with the study's nouns), treatment when not blind, responses
+        with units, reason, note."""
         assert headers(rcbd_plan) == [
             "code",
-            "unit",
+            "unit (plot)",
             "block",
             "row",
             "col",
-            "subsample",
+            "subsample (core)",
             "round",
             "treatment",
             "moisture (%)",
@@ -89,17 +90,28 @@ class TestProtectionAndValidation:
                 assert f"{r.min:g} to {r.max:g}" in dv.prompt
         reason_col = openpyxl.utils.get_column_letter(head.index("missing_reason") + 1)
         assert by_col[reason_col].type == "list"
-        assert by_col[reason_col].formula1 == '"' + ",".join(rcbd_plan.spec.collection.missing_reasons) + '"'
+        lists = openpyxl.load_workbook(entry)["lists"]
+        sheet, cells = by_col[reason_col].formula1.split("!")
+        assert sheet == "lists" and lists.sheet_state == "hidden"
+        listed = [c.value for row in lists[cells.replace("$", "")] for c in row]
+        assert listed == list(rcbd_plan.spec.collection.missing_reasons)
 
     def test_category_list_and_whole_numbers(self, tmp_path: Path, crd_plan: Plan) -> None:
         """Categories get a list validation; integer responses a whole-number one."""
         path = tmp_path / "e.xlsx"
         path.write_bytes(workbook_bytes(crd_plan))
         ws = openpyxl.load_workbook(path)["entry"]
-        types = {dv.type: dv for dv in ws.data_validations.dataValidation}
-        assert types["list"].formula1 in ('"healthy,wilted,chewed"', '"not measured,lost,damaged,other"')
-        lists = sorted(dv.formula1 for dv in ws.data_validations.dataValidation if dv.type == "list")
-        assert lists == sorted(['"not measured,lost,damaged,other"', '"healthy,wilted,chewed"'])
+        book = openpyxl.load_workbook(path)
+        listed = sorted(
+            tuple(c.value for row in book["lists"][dv.formula1.split("!")[1].replace("$", "")] for c in row)
+            for dv in ws.data_validations.dataValidation
+            if dv.type == "list"
+        )
+        assert listed == sorted([("not measured", "lost", "damaged", "other"), ("healthy", "wilted", "chewed")])
+        kinds = {dv.type for dv in ws.data_validations.dataValidation}
+        assert "whole" in kinds  # leaves (integer) and height (decimals = 0)
+        head = [c.value for c in ws[1]]
+        assert "block" not in head and "row" in head  # a crd has no blocks; its bench grid has rows
 
     def test_locked_structure_open_inputs(self, entry: Path, rcbd_plan: Plan) -> None:
         """Structure cells are locked, input cells unlocked, the sheet protected without a password."""
@@ -130,3 +142,43 @@ class TestLibreOffice:
             rows = list(csv.reader(fh))
         assert rows[0] == headers(rcbd_plan)
         assert [r[0] for r in rows[1:]] == [p.code for p in entry_rows(rcbd_plan)]
+
+
+class TestListsAfterLibreOffice:
+    def test_odd_and_long_level_lists_survive_a_resave(self, tmp_path: Path, soffice: str) -> None:
+        """Levels with commas and quotes, and a list longer than a literal list may be, stay offered after
+        LibreOffice Calc re-saves the workbook, and a filled copy checks clean."""
+        from layout import make_plan
+        from layout.intake.check import check_returns
+        from tests.conftest import libreoffice_convert
+
+        levels = ["split, then dried", 'called "soft"'] + [f"grade {i:02d} of the long scale" for i in range(1, 40)]
+        from layout.spec import parse_spec
+
+        spec = parse_spec(
+            {
+                "study": {"id": "LV1", "title": "levels", "seed": 2},
+                "design": {"type": "crd", "replicates": 2, "treatments": ["a", "b"]},
+                "response": [{"name": "texture", "kind": "category", "levels": levels}],
+            }
+        )
+        plan = make_plan(spec)
+        path = tmp_path / "entry.xlsx"
+        path.write_bytes(workbook_bytes(plan))
+        assert len(",".join(levels)) > 255
+        resaved = libreoffice_convert(soffice, path, "xlsx", tmp_path / "lo")
+        book = openpyxl.load_workbook(resaved)
+        dv = next(
+            d for d in book["entry"].data_validations.dataValidation if d.type == "list" and "lists" in d.formula1
+        )
+        sheet, cells = dv.formula1.replace("'", "").split("!")
+        got = [c.value for row in book[sheet][cells.replace("$", "")] for c in row]
+        assert got[: len(levels)] == levels or got == levels
+        ws = book["entry"]
+        head = [c.value for c in ws[1]]
+        for r in range(2, ws.max_row + 1):
+            ws.cell(r, head.index("texture") + 1).value = levels[0]
+        ws.protection.sheet = False
+        book.save(tmp_path / "filled.xlsx")
+        result = check_returns(plan, [tmp_path / "filled.xlsx"])
+        assert [f for f in result.findings if f.severity.value == "error"] == []

@@ -28,6 +28,10 @@ def _roles(plan: Plan) -> dict[str, tuple[str, str]]:
     """Normalised header → (role, name): structure columns, responses (header or bare name), reason, note."""
     blind = plan.spec.study.blind
     roles = {s: ("structure", s) for s in STRUCTURE_COLUMNS if not (blind and s == "treatment")}
+    d = plan.spec.design
+    # the workbook shows the study's nouns beside unit and subsample: 'unit (pot)'
+    roles[normal(f"unit ({d.unit_name})")] = ("structure", "unit")
+    roles[normal(f"subsample ({d.subsample_name})")] = ("structure", "subsample")
     for r in plan.spec.response:
         roles[normal(r.header)] = ("response", r.name)
         roles.setdefault(normal(r.name), ("response", r.name))
@@ -88,7 +92,16 @@ def map_columns(table: ReturnedTable, plan: Plan) -> tuple[Columns, list[Finding
 
 def _missing(plan: Plan, cols: Columns, roles: dict[str, tuple[str, str]], at: dict[str, object]) -> list[Finding]:
     found: list[Finding] = []
-    gone = [name for kind, name in roles.values() if kind == "structure" and name not in cols.structure]
+    has = {"block": any(u.block is not None for u in plan.units), "row": any(u.row is not None for u in plan.units)}
+    has["col"] = has["row"]
+    # a column the plan leaves empty (block in a crd, row and col without a grid) is not missing
+    gone = list(
+        dict.fromkeys(
+            name
+            for kind, name in roles.values()
+            if kind == "structure" and name not in cols.structure and has.get(name, True)
+        )
+    )
     needed = {"code": "rows cannot be matched to the plan without it"}
     if len(plan.rounds) > 1:
         needed["round"] = "this plan has several rounds, so rows cannot be placed without it"

@@ -28,16 +28,32 @@ class EntryRow:
 
 
 def structure_columns(plan: Plan) -> list[str]:
-    """Structure column headers; treatment only when the study is not blind."""
+    """Structure columns the design fills: no block without blocks, no row and col without a grid, no treatment when blind."""
     cols = list(STRUCTURE)
+    if all(u.block is None for u in plan.units):
+        cols.remove("block")
+    if all(u.row is None for u in plan.units):
+        cols.remove("row")
+        cols.remove("col")
     if not plan.spec.study.blind:
         cols.append("treatment")
     return cols
 
 
+def shown_header(plan: Plan, name: str) -> str:
+    """A structure column's header with the study's own noun beside it: 'unit (pot)', 'subsample (seedling)'."""
+    d = plan.spec.design
+    noun = {"unit": d.unit_name, "subsample": d.subsample_name}.get(name)
+    return f"{name} ({noun})" if noun and noun.lower() != name else name
+
+
 def headers(plan: Plan) -> list[str]:
     """The full header row of the entry sheet."""
-    return structure_columns(plan) + [r.header for r in plan.spec.response] + list(TRAILING)
+    return (
+        [shown_header(plan, c) for c in structure_columns(plan)]
+        + [r.header for r in plan.spec.response]
+        + list(TRAILING)
+    )
 
 
 @dataclass(frozen=True)
@@ -82,10 +98,17 @@ def entry_rows(plan: Plan, part: Part | None = None) -> list[EntryRow]:
 def structure_values(plan: Plan, row: EntryRow) -> list[object]:
     """The structure cells of one row, in header order."""
     u = row.unit
-    values: list[object] = [row.code, u.code, u.block, u.row, u.col, row.subsample, row.round]
-    if not plan.spec.study.blind:
-        values.append(u.treatment)
-    return values
+    every = {
+        "code": row.code,
+        "unit": u.code,
+        "block": u.block,
+        "row": u.row,
+        "col": u.col,
+        "subsample": row.subsample,
+        "round": row.round,
+        "treatment": u.treatment,
+    }
+    return [every[c] for c in structure_columns(plan)]
 
 
 def allowed_text(r: Response) -> str:

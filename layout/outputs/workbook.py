@@ -16,7 +16,7 @@ from typing import Final
 
 from openpyxl import Workbook
 from openpyxl.cell import WriteOnlyCell
-from openpyxl.styles import Alignment, Font, PatternFill, Protection
+from openpyxl.styles import Alignment, Border, Font, PatternFill, Protection, Side
 from openpyxl.utils import get_column_letter
 from openpyxl.worksheet._write_only import WriteOnlyWorksheet
 from openpyxl.worksheet.datavalidation import DataValidation
@@ -38,10 +38,15 @@ _FIXED_TIME: Final = datetime(2000, 1, 1)  # fixed so the same plan gives the sa
 _SHADE: Final = PatternFill("solid", fgColor="E8ECEF")
 _BOLD: Final = Font(bold=True)
 _OPEN: Final = Protection(locked=False)
+_THIN: Final = Side(style="thin", color="9AA3AB")
+_BOX: Final = Border(left=_THIN, right=_THIN, top=_THIN, bottom=_THIN)
+LISTS_SHEET: Final = "lists"
+_WIDTHS: Final = {"code": 15, "unit": 13, "block": 7, "row": 6, "col": 6, "subsample": 11, "round": 10, "treatment": 16}
 
 
 def _cell(ws: WriteOnlyWorksheet, value: object, *, locked: bool = True, bold: bool = False) -> WriteOnlyCell:
     c = WriteOnlyCell(ws, value=value)
+    c.border = _BOX
     if locked:
         c.fill = _SHADE
     else:
@@ -51,7 +56,7 @@ def _cell(ws: WriteOnlyWorksheet, value: object, *, locked: bool = True, bold: b
     return c
 
 
-def _validation(r: Response, cells: str) -> DataValidation:
+def _validation(r: Response, cells: str, lists: dict[str, str]) -> DataValidation:
     """Excel data validation for one response column."""
     title = r.name[:32]
     prompt = f"{r.header}: {allowed_text(r)}. Leave blank and pick a missing_reason if it could not be measured."[:255]
@@ -65,7 +70,7 @@ def _validation(r: Response, cells: str) -> DataValidation:
         error=f"Allowed: {allowed_text(r)}"[:255],
     )
     if r.kind in ("number", "integer"):
-        kind = "whole" if r.kind == "integer" else "decimal"
+        kind = "whole" if r.kind == "integer" or r.decimals == 0 else "decimal"
         lo, hi = r.min, r.max
         if lo is not None and hi is not None:
             dv = DataValidation(type=kind, operator="between", formula1=f"{lo:g}", formula2=f"{hi:g}", **kw)
@@ -78,7 +83,7 @@ def _validation(r: Response, cells: str) -> DataValidation:
             lo_any, hi_any = ("-2147483648", "2147483647") if kind == "whole" else ("-1E+307", "1E+307")
             dv = DataValidation(type=kind, operator="between", formula1=lo_any, formula2=hi_any, **kw)
     elif r.kind == "category":
-        dv = DataValidation(type="list", formula1=_list_formula(r.levels or ()), **kw)
+        dv = DataValidation(type="list", formula1=lists[r.name], **kw)
     elif r.kind == "date":
         # 1 is 1900-01-01 in spreadsheet date serials: any real date passes.
         dv = DataValidation(type="date", operator="greaterThanOrEqual", formula1="1", **kw)
@@ -88,28 +93,51 @@ def _validation(r: Response, cells: str) -> DataValidation:
     return dv
 
 
-def _list_formula(items: tuple[str, ...]) -> str:
-    text = ",".join(items)
-    return f'"{text}"'
+def _lists(plan: Plan) -> dict[str, list[str]]:
+    """Every list a validation offers: category levels by response name, and the missing reasons."""
+    lists = {r.name: list(r.levels or ()) for r in plan.spec.response if r.kind == "category"}
+    lists["missing_reason"] = list(plan.spec.collection.missing_reasons)
+    return lists
 
 
-def _entry_sheet(wb: Workbook, plan: Plan, part: Part | None) -> None:
+def _list_ranges(lists: dict[str, list[str]]) -> dict[str, str]:
+    """name → the range of the hidden lists sheet that holds it.
+
+    A range, not a literal list: levels may hold commas and quotes, and a literal list is
+    limited to 255 characters in spreadsheet programs.
+    """
+    return {
+        n: f"{LISTS_SHEET}!${get_column_letter(j + 1)}$1:${get_column_letter(j + 1)}${len(v)}"
+        for j, (n, v) in enumerate(lists.items())
+    }
+
+
+def _lists_sheet(wb: Workbook, lists: dict[str, list[str]]) -> None:
+    ws = wb.create_sheet(LISTS_SHEET)
+    ws.sheet_state = "hidden"
+    names = list(lists)
+    for i in range(max(len(v) for v in lists.values())):
+        ws.append([lists[n][i] if i < len(lists[n]) else None for n in names])
+
+
+def _entry_sheet(wb: Workbook, plan: Plan, part: Part | None, lists: dict[str, str]) -> None:
     ws = wb.create_sheet("entry")
     head = headers(plan)
     rows = entry_rows(plan, part)
-    n_struct = len(structure_columns(plan))
+    structure = structure_columns(plan)
+    n_struct = len(structure)
     last = len(rows) + 1
-    widths = [14, 12, 7, 6, 6, 10, 10] + ([16] if not plan.spec.study.blind else [])
+    widths = [max(_WIDTHS[c], len(h) + 3) for c, h in zip(structure, head, strict=False)]
     widths += [max(12, len(r.header) + 3) for r in plan.spec.response] + [16, 30]
     for i, w in enumerate(widths, start=1):
         ws.column_dimensions[get_column_letter(i)].width = w
     for j, r in enumerate(plan.spec.response):
         col = get_column_letter(n_struct + j + 1)
-        ws.data_validations.append(_validation(r, f"{col}2:{col}{last}"))
+        ws.data_validations.append(_validation(r, f"{col}2:{col}{last}", lists))
     reasons_col = get_column_letter(n_struct + len(plan.spec.response) + 1)
     reasons = DataValidation(
         type="list",
-        formula1=_list_formula(plan.spec.collection.missing_reasons),
+        formula1=lists["missing_reason"],
         allow_blank=True,
         showInputMessage=True,
         promptTitle="missing_reason",
@@ -125,7 +153,11 @@ def _entry_sheet(wb: Workbook, plan: Plan, part: Part | None) -> None:
     ws.sheet_properties.pageSetUpPr.fitToPage = True
     ws.protection.sheet = True  # no password: it guards against slips, not people
     ws.protection.formatColumns = False
+    ws.protection.sort = False  # allowed: rows are matched by code, so order does not matter
     ws.protection.autoFilter = False
+    last_col = get_column_letter(len(head))
+    ws.auto_filter.ref = f"A1:{last_col}{last}"
+    ws.print_area = f"A1:{last_col}{last}"
     ws.append([_cell(ws, h, bold=True) for h in head])
     inputs = len(plan.spec.response) + len(TRAILING)
     for row in rows:
@@ -149,8 +181,12 @@ def _units_sheet(wb: Workbook, plan: Plan) -> None:
 
 def _about_sheet(wb: Workbook, plan: Plan) -> None:
     ws = wb.create_sheet("about")
-    ws.column_dimensions["A"].width = 20
+    ws.column_dimensions["A"].width = 24
     ws.column_dimensions["B"].width = 90
+    ws.page_setup.orientation = "landscape"
+    ws.page_setup.fitToWidth = 1
+    ws.page_setup.fitToHeight = 1
+    ws.sheet_properties.pageSetUpPr.fitToPage = True
     spec = plan.spec
     d = spec.design
     wrap = Alignment(wrap_text=True, vertical="top")
@@ -223,9 +259,11 @@ def workbook_bytes(plan: Plan, part: Part | None = None) -> bytes:
     wb.properties.title = plan.spec.study.title
     wb.properties.created = _FIXED_TIME
     wb.properties.modified = _FIXED_TIME
-    _entry_sheet(wb, plan, part)
+    lists = _lists(plan)
+    _entry_sheet(wb, plan, part, _list_ranges(lists))
     _units_sheet(wb, plan)
     _about_sheet(wb, plan)
+    _lists_sheet(wb, lists)
     _hidden_sheet(wb, plan)
     buf = io.BytesIO()
     wb.save(buf)

@@ -65,7 +65,7 @@ def print_plan_summary(plan: Plan, path: Path | None) -> None:
     out.print(f"{spec.study.id}: {spec.study.title}", style="bold")
     table = Table()
     table.add_column("treatment")
-    table.add_column(f"{spec.design.unit_name}s", justify="right")
+    table.add_column(f"{spec.design.units_word}", justify="right")
     counts = Counter(u.treatment for u in plan.units)
     for label in spec.treatments:
         table.add_row(label, str(counts[label]))
@@ -74,7 +74,7 @@ def print_plan_summary(plan: Plan, path: Path | None) -> None:
     blocks = f", {d.blocks} blocks" if d.blocks else ""
     out.print(f"design      {d.type}{blocks}, {len(spec.treatments)} treatments")
     per = "varying" if plan.subsamples_vary else str(d.most_subsamples)
-    out.print(f"units       {len(plan.units)} {d.unit_name}s × {per} {d.subsample_name}s = {len(plan.slots)} slots")
+    out.print(f"units       {len(plan.units)} {d.units_word} × {per} {d.subsamples_word} = {len(plan.slots)} slots")
     out.print(f"rounds      {', '.join(r.name for r in plan.rounds)} (order: {spec.collection.order})")
     out.print(f"seed        {plan.seed}")
     out.print(f"fingerprint {plan.fingerprint}")
@@ -147,7 +147,7 @@ def _sheets(args: argparse.Namespace) -> int:
     folder = Path(args.output) if args.output else Path(args.plan).parent
     written = write_sheets(plan, folder, options)
     out.print(
-        f"{plan.spec.study.id}: {len(plan.units)} {plan.spec.design.unit_name}s, {len(plan.slots)} slots, "
+        f"{plan.spec.study.id}: {len(plan.units)} {plan.spec.design.units_word}, {len(plan.slots)} slots, "
         f"{len(plan.rounds)} round(s); plan {plan.fingerprint[:12]}"
     )
     for path in written:

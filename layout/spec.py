@@ -117,7 +117,19 @@ class Design(_Frozen):
     subsamples: Int | dict[Str, Int] = 1
     unit_name: Str = "unit"
     subsample_name: Str = "subsample"
+    unit_plural: Str | None = None
+    subsample_plural: Str | None = None
     treatments: tuple[Str, ...] | None = None
+
+    @property
+    def units_word(self) -> str:
+        """The plural of unit_name: unit_plural, or the usual English plural."""
+        return self.unit_plural or plural(self.unit_name)
+
+    @property
+    def subsamples_word(self) -> str:
+        """The plural of subsample_name: subsample_plural, or the usual English plural."""
+        return self.subsample_plural or plural(self.subsample_name)
 
     @field_validator("replicates", mode="before")
     @classmethod
@@ -148,10 +160,10 @@ class Design(_Frozen):
         """The largest number of subsamples any unit has."""
         return max(self.subsamples.values()) if isinstance(self.subsamples, dict) else self.subsamples
 
-    @field_validator("unit_name", "subsample_name")
+    @field_validator("unit_name", "subsample_name", "unit_plural", "subsample_plural")
     @classmethod
-    def _names(cls, v: str) -> str:
-        return _label(v)
+    def _names(cls, v: str | None) -> str | None:
+        return v if v is None else _label(v)
 
     @field_validator("treatments")
     @classmethod
@@ -320,6 +332,15 @@ class Spec(_Frozen):
             return table[treatment]
         whole = next((f.name for f in self.factor if f.whole_plot), None)
         return table[levels[whole]] if whole is not None else 1
+
+
+def plural(word: str) -> str:
+    """The usual English plural: batch → batches, tray → trays, assay → assays, colony → colonies."""
+    if re.search(r"(s|x|z|ch|sh)$", word):
+        return word + "es"
+    if re.search(r"[^aeiou]y$", word):
+        return word[:-1] + "ies"
+    return word + "s"
 
 
 def _show(value: Any) -> str:

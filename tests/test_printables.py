@@ -109,15 +109,26 @@ class TestSheets:
         joined = re.sub(r"(?<=\d) (?=[A-Z]\b)", "", text)
         missing = [s.code for s in rcbd_plan.slots if s.code not in joined]
         assert missing == []
-        assert f"page {len(pages)} of {len(pages)}" in text
+        last = pages[-1]
+        assert f"page {last.number} of {last.of}" in text
 
-    def test_pages_grouped_by_round_and_block(self, rcbd_plan: Plan) -> None:
-        """Every sheet page holds one round and one block, in collection order."""
-        pages, _ = sheet_pages(rcbd_plan, "a4")
-        for page in pages:
+    def test_pages_by_round_filled_with_whole_units(self, rcbd_plan: Plan) -> None:
+        """Every page holds one round; no unit's subsamples are split over two pages; pages are filled (each but a
+        round's last could not take the next unit); pages are numbered within their round."""
+        pages, orientation = sheet_pages(rcbd_plan, "a4")
+        per_page = 26 if orientation == "portrait" else 16
+        seen: dict[tuple[str, str], int] = {}
+        for i, page in enumerate(pages):
             assert {r.round for r in page.rows} == {page.round}
-            assert {r.unit.block for r in page.rows} == {page.block}
-        assert [p.number for p in pages] == list(range(1, len(pages) + 1))
+            for r in page.rows:
+                assert seen.setdefault((r.round, r.unit.code), i) == i
+            if i + 1 < len(pages) and pages[i + 1].round == page.round:
+                lines = len(page.rows) + sum(page.starts_block(k) for k in range(len(page.rows)))
+                assert lines + 4 + 1 > per_page  # the next unit (4 cores) and its heading would not fit
+        for rnd in {p.round for p in pages}:
+            mine = [p for p in pages if p.round == rnd]
+            assert [(p.number, p.of) for p in mine] == [(k, len(mine)) for k in range(1, len(mine) + 1)]
+        assert len(pages) < 8  # 2 rounds × 4 blocks of 16 rows, before: one half-empty page per block
 
     @pytest.mark.parametrize("paper", ["a4", "letter"])
     def test_paper_size(self, rcbd_plan: Plan, paper: str, tmp_path: Path) -> None:

@@ -77,7 +77,7 @@ def statistical_findings(
 ) -> tuple[list[Finding], set[tuple[str, str, str]], set[tuple[str, str]]]:
     """outlier-subsample and possible-swap findings, with the (slot, round, response) and (unit, round) they mark."""
     headers = {r.name: r.header for r in plan.spec.response}
-    sub_name = plan.spec.design.subsample_name
+    sub_name = plan.spec.design.subsamples_word
     got = screen(plan, groups_of(plan, merged))
     found: list[Finding] = []
     outliers: set[tuple[str, str, str]] = set()
@@ -87,7 +87,7 @@ def statistical_findings(
         found.append(
             finding(
                 Kind.OUTLIER_SUBSAMPLE,
-                f"{headers[response]} {o.value:g} in round {rnd} is far from the other {sub_name}s of {o.unit} "
+                f"{headers[response]} {o.value:g} in round {rnd} is far from the other {sub_name} of {o.unit} "
                 f"(their mean {o.others:.4g}; {o.score:.1f} SD of the {sub_name}-to-{sub_name} spread, "
                 f"flagged above {got.outlier_threshold:.1f})",
                 file=e.file,

@@ -19,10 +19,10 @@ from layout.plan import Plan, Unit
 from layout.render import BLOCK_COLOURS, TREATMENT_COLOURS, map_cells, stylesheet, template_env
 
 _SHEET_ROWS: Final = {
-    ("a4", "portrait"): 24,
-    ("a4", "landscape"): 15,
-    ("letter", "portrait"): 22,
-    ("letter", "landscape"): 16,
+    ("a4", "portrait"): 26,
+    ("a4", "landscape"): 16,
+    ("letter", "portrait"): 24,
+    ("letter", "landscape"): 17,
 }
 
 Tick = Callable[[], None]
@@ -52,33 +52,73 @@ def position_text(u: Unit) -> str:
 
 @dataclass
 class SheetPage:
-    """One printed collection sheet."""
+    """One printed collection sheet: one round, one or more blocks, whole units only."""
 
     round: str
     block: int | None
     rows: list[EntryRow] = field(default_factory=list)
-    number: int = 0
+    number: int = 0  # within its round
+    of: int = 0
+    blocks: list[int] = field(default_factory=list)
+
+    def starts_block(self, i: int) -> bool:
+        """Whether row i opens a new block on this page (a block heading goes above it)."""
+        return self.rows[i].unit.block is not None and (
+            i == 0 or self.rows[i - 1].unit.block != self.rows[i].unit.block
+        )
+
+
+def _by_unit(rows: list[EntryRow]) -> list[list[EntryRow]]:
+    groups: list[list[EntryRow]] = []
+    for row in rows:
+        if groups and groups[-1][0].unit.code == row.unit.code and groups[-1][0].round == row.round:
+            groups[-1].append(row)
+        else:
+            groups.append([row])
+    return groups
 
 
 def sheet_pages(plan: Plan, paper: str, part: Part | None = None) -> tuple[list[SheetPage], str]:
-    """Rows cut into pages by round and block, and the orientation that fits the responses."""
+    """Rows cut into pages per round, filled with whole units (a block heading costs a line), and the orientation."""
     orientation = "portrait" if len(plan.spec.response) <= 3 else "landscape"
     per_page = _SHEET_ROWS[(paper, orientation)]
     pages: list[SheetPage] = []
-    for row in entry_rows(plan, part):
+    used = 0
+    for group in _by_unit(entry_rows(plan, part)):
+        first = group[0]
         last = pages[-1] if pages else None
-        if last is None or (last.round, last.block) != (row.round, row.unit.block) or len(last.rows) >= per_page:
-            pages.append(SheetPage(row.round, row.unit.block))
-        pages[-1].rows.append(row)
-    for i, page in enumerate(pages, start=1):
-        page.number = i
+        heading = (
+            1 if first.unit.block is not None and (last is None or last.rows[-1].unit.block != first.unit.block) else 0
+        )
+        if last is None or last.round != first.round or (used + len(group) + heading > per_page and last.rows):
+            pages.append(SheetPage(first.round, first.unit.block))
+            used = 1 if first.unit.block is not None else 0
+        else:
+            used += heading
+        page = pages[-1]
+        page.rows += group
+        used += len(group)
+        if first.unit.block is not None and first.unit.block not in page.blocks:
+            page.blocks.append(first.unit.block)
+    for rnd in dict.fromkeys(p.round for p in pages):
+        mine = [p for p in pages if p.round == rnd]
+        for i, page in enumerate(mine, start=1):
+            page.number, page.of = i, len(mine)
     return pages, orientation
+
+
+def human(name: str) -> str:
+    """A spec name as a header on paper: underscores as spaces (sampled_on → sampled on)."""
+    return name.replace("_", " ")
 
 
 def render_sheets(plan: Plan, paper: str = "a4", part: Part | None = None) -> str:
     """sheets.html: collection sheets by round and block, in collection order (all, or one part's)."""
     pages, orientation = sheet_pages(plan, paper, part)
-    responses = [{"header": r.header, "name": r.name, "allowed": allowed_text(r)} for r in plan.spec.response]
+    responses = [
+        {"header": human(r.header), "name": r.name, "allowed": allowed_text(r), "date": r.kind == "date"}
+        for r in plan.spec.response
+    ]
     return (
         template_env()
         .get_template("sheets.html")
@@ -91,6 +131,7 @@ def render_sheets(plan: Plan, paper: str = "a4", part: Part | None = None) -> st
             orientation=orientation,
             reasons=plan.spec.collection.missing_reasons,
             show_treatment=not plan.spec.study.blind,
+            show_whole_plot=any(u.whole_plot is not None for u in plan.units),
             position=position_text,
         )
     )

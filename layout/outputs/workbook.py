@@ -192,9 +192,9 @@ def _about_sheet(wb: Workbook, plan: Plan) -> None:
     wrap = Alignment(wrap_text=True, vertical="top")
     # blind: no seed and no treatment count, from which the grouping of units could be rebuilt
     design = (
-        f"{len(plan.units)} {d.unit_name}s, {len(plan.slots)} {d.subsample_name} slots"
+        f"{len(plan.units)} {d.units_word}, {len(plan.slots)} {d.subsample_name} slots"
         if spec.study.blind
-        else f"{d.type}, {len(spec.treatments)} treatments, {len(plan.units)} {d.unit_name}s, "
+        else f"{d.type}, {len(spec.treatments)} treatments, {len(plan.units)} {d.units_word}, "
         f"{len(plan.slots)} {d.subsample_name} slots"
     )
     lines: list[tuple[str, object]] = [

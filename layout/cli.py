@@ -186,7 +186,7 @@ def print_check_summary(result: CheckResult, written: list[Path]) -> None:
         out.print(f"... and {rest} more in report.html")
     errors = s["by_severity"]["error"]
     out.print(
-        f"{errors} error(s), {s['by_severity']['warning']} warning(s), {s['by_severity']['info']} note(s)",
+        f"{errors} error(s), {s['by_severity']['warning']} warning(s), {s['by_severity']['info']} info",
         style="bold red" if errors else "bold green",
     )
     for path in written:

@@ -175,3 +175,25 @@ class TestSummaryAndPipes:
         report = json.loads((tmp_path / "r" / "report.json").read_text())
         dups = [f for f in report["findings"] if f["kind"] == "duplicate-slot"]
         assert len(dups) == 1 and dups[0]["file"] == str(copy) and dups[0]["code"] is None
+
+
+class TestReportIsPrintSafe:
+    def test_status_colours_differ_in_greyscale_and_carry_marks(self) -> None:
+        """Each status of the completeness map has its own mark, and its colour differs from every other's
+        lightness by a contrast ratio of at least 1.25 (WCAG 2.x relative luminance), so greyscale prints keep them apart."""
+        from layout.intake.report import STATUS_COLOURS, STATUS_MARKS, luminance
+
+        assert set(STATUS_MARKS) == set(STATUS_COLOURS) and len(set(STATUS_MARKS.values())) == len(STATUS_MARKS)
+        levels = sorted(luminance(c) for c in STATUS_COLOURS.values())
+        ratios = [(b + 0.05) / (a + 0.05) for a, b in zip(levels, levels[1:], strict=False)]
+        assert min(ratios) >= 1.25, ratios
+
+    def test_findings_name_files_not_paths(self, setup: tuple[Path, Path], tmp_path: Path) -> None:
+        """The findings table shows a file's name (its full path is in the files table and the cell's title)."""
+        plan, filled = setup
+        bad = tmp_path / "deep" / "folder" / "bad.csv"
+        bad.parent.mkdir(parents=True)
+        bad.write_text("code,round,moisture (%)\nIRR7-001-1Q,june,12\n", encoding="utf-8")
+        main(["check", str(plan), str(filled), str(bad), "-o", str(tmp_path / "r")])
+        html = (tmp_path / "r" / "report.html").read_text(encoding="utf-8")
+        assert f">{bad.name}</td>" in html and f"<td>{bad}</td>" in html

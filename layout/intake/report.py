@@ -12,15 +12,32 @@ from layout.meta import __version__
 from layout.plan import Plan
 from layout.render import BLOCK_COLOURS, map_cells, stylesheet, template_env
 
+# each status its own colour and its own mark, so the map reads in greyscale and without colour vision;
+# lightness steps apart (tests/test_check_command.py measures the greyscale contrast)
 STATUS_COLOURS: Final = {
-    "ok": "#cfe8d6",
-    "declared-missing": "#d6e3f5",
-    "missing": "#f3c6c6",
-    "error": "#f3c6c6",
-    "conflict": "#f7d9a8",
-    "partial": "#f7ecb5",
+    "ok": "#ffffff",
+    "declared-missing": "#a6c4e4",
+    "partial": "#f6e3a1",
+    "conflict": "#e89a54",
+    "error": "#c8524f",
+    "missing": "#5a5a5a",
+}
+STATUS_MARKS: Final = {
+    "ok": "✓",
+    "declared-missing": "–",
+    "partial": "½",
+    "conflict": "≠",
+    "error": "!",
+    "missing": "✗",
 }
 REPORT_FILES: Final = ("report.json", "report.html", "tidy.csv")
+
+
+def luminance(colour: str) -> float:
+    """Relative luminance of a #rrggbb colour (WCAG 2.x definition), 0 black to 1 white."""
+    rgb = [int(colour[i : i + 2], 16) / 255 for i in (1, 3, 5)]
+    lin = [c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4 for c in rgb]
+    return 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
 
 
 def _severity_rank(f: Any) -> int:
@@ -101,7 +118,7 @@ def _strip_plots(plan: Plan, result: CheckResult, unblind: bool) -> list[dict[st
                     "dots": dots,
                     "groups": groups,
                     "width": left + len(order) * step + 10,
-                    "height": height + top + 34,
+                    "height": height + top + 46,
                     "lo": f"{lo:g}",
                     "hi": f"{hi:g}",
                     "y_lo": top + height,
@@ -147,6 +164,8 @@ def report_html(plan: Plan, result: CheckResult, unblind: bool = False) -> str:
             is_grid=is_grid,
             status=status,
             status_colours=STATUS_COLOURS,
+            status_marks=STATUS_MARKS,
+            dark={k for k, c in STATUS_COLOURS.items() if luminance(c) < 0.25},
             plots=_strip_plots(plan, result, unblind),
             block_colours=BLOCK_COLOURS,
             errors=result.errors,

@@ -63,13 +63,20 @@ def engine(request: pytest.FixtureRequest) -> str:
     return "weasyprint"
 
 
+STOCK = {
+    "64x34": LabelGeometry(),
+    "99x38": LabelGeometry(cols=2, rows=7, width=99, height=38, top=15, left=5, col_gap=2, row_gap=0),
+}
+
+
 class TestLabels:
+    @pytest.mark.parametrize("stock", list(STOCK))
     @pytest.mark.parametrize("units", [False, True], ids=["slot-labels", "unit-labels"])
     def test_every_code_decodes_once_at_its_place(
-        self, units: bool, crd_plan: Plan, engine: str, pdftoppm: str, tmp_path: Path
+        self, units: bool, stock: str, crd_plan: Plan, engine: str, pdftoppm: str, tmp_path: Path
     ) -> None:
         """Rasterized at 200 dpi, zxing-cpp reads exactly the planned codes, one symbol each, within 0.5 mm of the geometry."""
-        g = LabelGeometry()
+        g = STOCK[stock]
         pdf = pdf_of(render_labels(crd_plan, g, units=units), engine, tmp_path, "labels")
         codes = [u.code for u in crd_plan.units] if units else [s.code for s in crd_plan.slots]
         pages = rasterize(pdf, pdftoppm, tmp_path)
@@ -84,6 +91,17 @@ class TestLabels:
                 assert abs(cy - (y + g.height / 2)) < 0.5, (text, cy)
                 seen.append(text)
         assert sorted(seen) == sorted(codes)
+
+    def test_symbol_and_code_scale_with_the_label(self, crd_plan: Plan) -> None:
+        """On larger stock the QR symbol takes the label's height and the printed code grows with it."""
+        import re as _re
+
+        sizes = {}
+        for name, g in STOCK.items():
+            html = render_labels(crd_plan, g)
+            sizes[name] = float(_re.search(r"\.label \.code \{ font-size: ([0-9.]+)mm", html).group(1))
+            assert g.qr_size == pytest.approx(min(g.height, g.width / 2) - 3.0)  # as high as the label allows
+        assert sizes["99x38"] > sizes["64x34"] * 1.1
 
     def test_label_printer_one_per_page(self, crd_plan: Plan, engine: str, pdftoppm: str, tmp_path: Path) -> None:
         """With single labels of 50 x 25 mm each page is one label of that size holding its unit's code."""

@@ -175,7 +175,16 @@ def render_labels(plan: Plan, geometry: LabelGeometry, units: bool = False, tick
                     tick()
     page_w, page_h = geometry.page_size
     text_w = geometry.width - geometry.qr_size - 3 * PAD_MM
-    font = round(min(3.4, geometry.height * 0.115, text_w / 7.5), 2)
+    # the code as large as the label allows: its longest code fits the text column (a mono character is
+    # about 0.62 em wide), and the code with its lines fits the label's height
+    longest = max((len(i["code"]) for i in items), default=12)
+    lines = max((len(i["lines"]) for i in items), default=3)
+    top = (geometry.height - geometry.qr_size) / 2 + geometry.qr_size * 0.12  # where the text starts (labels.html)
+    room = geometry.height - top - PAD_MM - 0.8
+    font = round(min(text_w / (0.62 * longest + 0.6), room / (1.3 + 0.78 * 1.3 * lines), 7.0), 2)
+    # the lines below the code: as large as the code allows, but narrow enough for the longest line (sans, ~0.55 em)
+    widest = max((len(line) for i in items for line in i["lines"]), default=10)
+    line_font = round(max(min(0.78 * font, text_w / (0.55 * widest)), 1.8), 2)
     return (
         template_env()
         .get_template("labels.html")
@@ -188,6 +197,7 @@ def render_labels(plan: Plan, geometry: LabelGeometry, units: bool = False, tick
             pad=PAD_MM,
             text_w=text_w,
             font=font,
+            line_font=line_font,
             kind="unit" if units else "slot",
         )
     )

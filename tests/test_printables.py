@@ -165,7 +165,7 @@ class TestBlind:
         written = write_sheets(blind_plan, tmp_path, SheetOptions(pdf=True, pdf_engine=chromium))
         names = {p.name for p in written}
         assert {"key.csv", "map-key.html"} <= names
-        collector = [p for p in written if p.name not in ("key.csv", "map-key.html")]
+        collector = [p for p in written if p.name not in ("key.csv", "map-key.html", "map-key.pdf")]
         treatments = blind_plan.spec.treatments
         for path in collector:
             if path.suffix == ".xlsx":
@@ -249,3 +249,38 @@ class TestUnequalSubsamples:
         kinds = {f.kind for f in result.findings}
         assert kinds == {Kind.MISSING_VALUE}
         assert sum(f.kind is Kind.MISSING_VALUE for f in result.findings) == len(plan.slots) * 2
+
+
+class TestMaps:
+    def test_every_study_gets_both_maps_and_pdfs(self, rcbd_plan: Plan, tmp_path: Path, chromium: str) -> None:
+        """A study that is not blind still gets a collectors' map without treatments, and --pdf makes both PDFs."""
+        written = {
+            p.name
+            for p in write_sheets(rcbd_plan, tmp_path, SheetOptions(only=("map",), pdf=True, pdf_engine=chromium))
+        }
+        assert written == {"map.html", "map-key.html", "map.pdf", "map-key.pdf"}
+        collectors = (tmp_path / "map.html").read_text(encoding="utf-8")
+        assert not any(f">{t}<" in collectors for t in rcbd_plan.spec.treatments)
+        assert all(
+            f">{t}<" in (tmp_path / "map-key.html").read_text(encoding="utf-8") for t in rcbd_plan.spec.treatments
+        )
+
+    def test_axis_names_landmark_and_block_outlines(self) -> None:
+        """rows_are, cols_are and landmark from the spec are printed; cells on a block's edge get a thick border."""
+        from layout import loads_spec, make_plan
+        from layout.outputs.printable import _outlines, map_cells
+
+        spec = loads_spec(
+            '[study]\nid = "MP1"\ntitle = "m"\nseed = 1\n[design]\ntype = "rcbd"\nblocks = 2\ntreatments = ["a", "b", "c", "d"]\n'
+            '[layout]\nrows = 2\ncols = 4\nrows_are = "bench"\ncols_are = "position"\nlandmark = "door at bench 1"\n'
+            '[[response]]\nname = "y"\nkind = "number"\n',
+            "m.toml",
+        )
+        plan = make_plan(spec)
+        html = render_map(plan, show_treatments=False)
+        assert "bench 2" in html and "position 4" in html and "door at bench 1" in html
+        cells, _ = map_cells(plan)
+        lines = _outlines(cells)
+        # blocks are the two bench rows: the top cells' bottom edge borders the other block
+        assert all(lines[(0, j)].split()[2] == "1mm" for j in range(4))
+        assert all(lines[(0, j)].split()[1] == "0.2mm" for j in range(3))

@@ -60,9 +60,7 @@ def planned_files(plan: Plan, options: SheetOptions) -> list[str]:
         elif product == "labels":
             names += ["labels.html", "unit-labels.html"] + (["labels.pdf", "unit-labels.pdf"] if pdf else [])
         elif product == "map":
-            names.append("map.html")
-            if plan.spec.study.blind:
-                names.append("map-key.html")
+            names += ["map.html", "map-key.html"] + (["map.pdf", "map-key.pdf"] if pdf else [])
         elif product == "key":
             names.append("key.csv")
     return names
@@ -156,9 +154,12 @@ def write_sheets(plan: Plan, out_dir: str | Path, options: SheetOptions | None =
                     for name, html in pages:
                         pdf_of(name, html)
             elif product == "map":
-                put("map.html", render_map(plan, show_treatments=not plan.spec.study.blind))
-                if plan.spec.study.blind:
-                    put("map-key.html", render_map(plan, show_treatments=True))
+                # collectors get the map without treatments in every study; the lead gets map-key
+                for name, show in (("map.html", False), ("map-key.html", True)):
+                    html = render_map(plan, show_treatments=show)
+                    put(name, html)
+                    if options.pdf:
+                        pdf_of(name, html)
             elif product == "key":
                 put("key.csv", key_csv(plan))
     return written

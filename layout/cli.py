@@ -42,8 +42,8 @@ _EPILOG_SHEETS = """example:
   layout sheets plan.json --split round -o field        # entry-<round>.xlsx: one copy per person
   layout sheets plan.json --only labels --label-grid 2x7 --label-size 99x38 --label-margins 15x6 --label-gaps 2x0
 
-Makes entry.xlsx, sheets.html, labels.html, unit-labels.html, map.html (and map-key.html
-for a blind study) and key.csv from the plan alone. An existing file, such as a
+Makes entry.xlsx, sheets.html, labels.html, unit-labels.html, map.html (for collectors),
+map-key.html (with treatments, for the study lead) and key.csv from the plan alone. An existing file, such as a
 filled-in entry.xlsx, is never replaced without --force."""
 
 _EPILOG_CHECK = """example:

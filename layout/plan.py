@@ -77,6 +77,9 @@ class Plan:
     rounds: tuple[Round, ...]
     salt: int = 0
     replaces: dict[str, Any] | None = None
+    # the spec exactly as a loaded plan.json holds it, so a later version with new spec keys
+    # recomputes the same fingerprint for it
+    spec_json: dict[str, Any] | None = None
 
     def content(self) -> dict[str, Any]:
         """The fingerprinted content as plain JSON data."""
@@ -86,7 +89,7 @@ class Plan:
             "rng": self.rng,
             "codes": {"scheme": SCHEME, "letters": CHECK_LETTERS, "salt": self.salt},
             "replaces": self.replaces,
-            "spec": self.spec.model_dump(mode="json"),
+            "spec": self.spec_json if self.spec_json is not None else self.spec.model_dump(mode="json"),
             "units": [asdict(u) for u in self.units],
             "slots": [asdict(s) for s in self.slots],
             "rounds": [{"name": r.name, "order": list(r.order)} for r in self.rounds],
@@ -270,6 +273,7 @@ def parse_plan(text: str, file: str = "plan.json") -> Plan:
             rounds=tuple(Round(r["name"], tuple(r["order"])) for r in data["rounds"]),
             salt=int(data["codes"]["salt"]),
             replaces=data.get("replaces"),
+            spec_json=data["spec"],
         )
     except (KeyError, TypeError, ValueError, ValidationError) as exc:
         raise PlanError.at(file, "", f"not a complete layout plan ({type(exc).__name__}: {exc})") from None

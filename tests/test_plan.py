@@ -168,3 +168,17 @@ class TestReplacing:
         assert [(u.treatment, u.block, u.row, u.col) for u in twin.units] == [
             (u.treatment, u.block, u.row, u.col) for u in plain.units
         ]
+
+
+class TestLaterVersions:
+    def test_a_plan_whose_spec_lacks_newer_keys_keeps_its_fingerprint(self, tmp_path: Path) -> None:
+        """A plan.json written before a spec key existed loads with the fingerprint it was written with."""
+        data = json.loads(make_plan(load_spec(EXAMPLE)).to_json())
+        del data["spec"]["design"]["unit_plural"]  # as if written by a version without this key
+        body = {k: v for k, v in data.items() if k not in ("fingerprint", "tool")}
+        import rfc8785
+
+        data["fingerprint"] = hashlib.sha256(rfc8785.dumps(body)).hexdigest()
+        path = tmp_path / "old.json"
+        path.write_text(json.dumps(data), encoding="utf-8")
+        assert load_plan(path).fingerprint == data["fingerprint"]

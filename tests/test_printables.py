@@ -7,6 +7,7 @@ import subprocess
 import tempfile
 from pathlib import Path
 
+import numpy as np
 import pytest
 import zxingcpp
 from PIL import Image
@@ -284,3 +285,38 @@ class TestMaps:
         # blocks are the two bench rows: the top cells' bottom edge borders the other block
         assert all(lines[(0, j)].split()[2] == "1mm" for j in range(4))
         assert all(lines[(0, j)].split()[1] == "0.2mm" for j in range(3))
+
+
+def _lab(rgb_hex: str, matrix: object = None) -> np.ndarray:
+    """CIE L*a*b* (D65) of an sRGB colour, optionally as seen through a colour-vision-deficiency matrix."""
+    c = np.array([int(rgb_hex[i : i + 2], 16) / 255 for i in (1, 3, 5)])
+    lin = np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
+    if matrix is not None:
+        lin = np.clip(np.asarray(matrix) @ lin, 0, 1)
+    xyz = np.array([[0.4124, 0.3576, 0.1805], [0.2126, 0.7152, 0.0722], [0.0193, 0.1192, 0.9505]]) @ lin
+    t = xyz / np.array([0.95047, 1.0, 1.08883])
+    f = np.where(t > 0.008856, np.cbrt(t), 7.787 * t + 16 / 116)
+    return np.array([116 * f[1] - 16, 500 * (f[0] - f[1]), 200 * (f[1] - f[2])])
+
+
+# Machado, Oliveira & Fernandes (2009), IEEE TVCG 15(6): 1291-1298, severity 1.0 (values from memory)
+_CVD = {
+    "protan": [[0.152286, 1.052583, -0.204868], [0.114503, 0.786281, 0.099216], [-0.003882, -0.048116, 1.051998]],
+    "deutan": [[0.367322, 0.860646, -0.227968], [0.280085, 0.672501, 0.047413], [-0.011820, 0.042940, 0.968881]],
+    "tritan": [[1.255528, -0.076749, -0.178779], [-0.078411, 0.930809, 0.147602], [0.004733, 0.691367, 0.303900]],
+}
+
+
+class TestColours:
+    def test_treatment_colours_stay_apart(self) -> None:
+        """Every pair of treatment colours differs by CIE76 ΔE ≥ 15 in normal vision and in simulated protan, deutan and
+        tritan vision, and by L* ≥ 4.5 in greyscale (CIE L*a*b*, sRGB D65; ΔE ≈ 2.3 is a just-noticeable difference)."""
+        from itertools import combinations
+
+        from layout.render import TREATMENT_COLOURS
+
+        assert len(set(TREATMENT_COLOURS)) == len(TREATMENT_COLOURS) == 12
+        for a, b in combinations(TREATMENT_COLOURS, 2):
+            assert abs(_lab(a)[0] - _lab(b)[0]) >= 4.5, (a, b)
+            for matrix in (None, *_CVD.values()):
+                assert np.linalg.norm(_lab(a, matrix) - _lab(b, matrix)) >= 15, (a, b, matrix)

@@ -78,9 +78,20 @@ def _by_unit(rows: list[EntryRow]) -> list[list[EntryRow]]:
     return groups
 
 
+def sheet_orientation(plan: Plan, paper: str) -> str:
+    """Portrait when every response column gets at least 20 mm beside the fixed columns, else landscape."""
+    fixed = 29 + 22 + 17 + 22 + 24  # code, unit, subsample, missing reason, note (sheets.html)
+    fixed += 20 if not plan.spec.study.blind else 0
+    fixed += 13 if any(u.whole_plot is not None for u in plan.units) else 0
+    dates = sum(1 for r in plan.spec.response if r.kind == "date")
+    others = len(plan.spec.response) - dates
+    width = (210.0 if paper == "a4" else 215.9) - 24 - fixed - 27 * dates
+    return "portrait" if others == 0 or width / others >= 20 else "landscape"
+
+
 def sheet_pages(plan: Plan, paper: str, part: Part | None = None) -> tuple[list[SheetPage], str]:
     """Rows cut into pages per round, filled with whole units (a block heading costs a line), and the orientation."""
-    orientation = "portrait" if len(plan.spec.response) <= 3 else "landscape"
+    orientation = sheet_orientation(plan, paper)
     per_page = _SHEET_ROWS[(paper, orientation)]
     pages: list[SheetPage] = []
     used = 0

@@ -78,15 +78,20 @@ def _by_unit(rows: list[EntryRow]) -> list[list[EntryRow]]:
     return groups
 
 
+def treatment_width(plan: Plan) -> float:
+    """mm for the treatment column: its longest label at the sheet's 3 mm type (about 1.8 mm a character)."""
+    return round(min(45.0, max(19.0, 1.8 * max(len(t) for t in plan.spec.treatments) + 3)), 1)
+
+
 def sheet_orientation(plan: Plan, paper: str) -> str:
-    """Portrait when every response column gets at least 20 mm beside the fixed columns, else landscape."""
-    fixed = 29 + 22 + 17 + 22 + 24  # code, unit, subsample, missing reason, note (sheets.html)
-    fixed += 20 if not plan.spec.study.blind else 0
+    """Portrait when every response column gets at least 17 mm beside the fixed columns, else landscape."""
+    fixed = 27 + 20 + 15 + 20 + 18  # code, unit, subsample, missing reason, note (sheets.html)
+    fixed += treatment_width(plan) if not plan.spec.study.blind else 0
     fixed += 13 if any(u.whole_plot is not None for u in plan.units) else 0
     dates = sum(1 for r in plan.spec.response if r.kind == "date")
     others = len(plan.spec.response) - dates
     width = (210.0 if paper == "a4" else 215.9) - 24 - fixed - 27 * dates
-    return "portrait" if others == 0 or width / others >= 20 else "landscape"
+    return "portrait" if others == 0 or width / others >= 17 else "landscape"
 
 
 def sheet_pages(plan: Plan, paper: str, part: Part | None = None) -> tuple[list[SheetPage], str]:
@@ -143,6 +148,7 @@ def render_sheets(plan: Plan, paper: str = "a4", part: Part | None = None) -> st
             reasons=plan.spec.collection.missing_reasons,
             show_treatment=not plan.spec.study.blind,
             show_whole_plot=any(u.whole_plot is not None for u in plan.units),
+            treatment_width=treatment_width(plan),
             position=position_text,
         )
     )

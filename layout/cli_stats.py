@@ -120,8 +120,13 @@ def _power(args: argparse.Namespace) -> int:
             raise UsageError(f"{name}: must be above 0, got {v}")
     if t < 2:
         raise UsageError(f"--treatments: a comparison needs at least 2, got {t}")
-    if var_unit < 0 or var_sub < 0:
-        raise UsageError("--var-unit, --var-sub: variances cannot be negative")
+    if var_unit < 0 or var_sub < 0 or var_unit + var_sub <= 0:
+        raise UsageError(
+            f"--var-unit, --var-sub: variances must be 0 or more and not both 0, got {var_unit:g} and {var_sub:g}"
+        )
+    for name, v in (("--alpha", args.alpha), ("--target", args.target)):
+        if not 0 < v < 1:
+            raise UsageError(f"{name}: must be between 0 and 1, got {v:g}")
     result = power_grid(
         t,
         var_unit,

@@ -436,3 +436,31 @@ class TestMethods:
         cat = next(r for r in analyze(plan, tidy)["results"] if r["response"] == "cover")
         assert cat["method"] == "counts" and sum(map(sum, cat["counts"]["table"])) == len(plan.units)
         assert "test" in cat and 0 <= cat["test"]["p"] <= 1
+
+
+class TestBadInput:
+    @pytest.mark.parametrize(
+        "args",
+        [
+            ["power", "--treatments", "4", "--var-unit", "0", "--var-sub", "0", "--difference", "2"],
+            ["power", "--treatments", "4", "--var-unit", "1", "--var-sub", "1", "--difference", "2", "--alpha", "2"],
+            ["power", "--treatments", "4", "--var-unit", "1", "--var-sub", "1", "--difference", "2", "--target", "0"],
+            ["power", "--treatments", "4", "--var-unit", "-1", "--var-sub", "1", "--difference", "2"],
+        ],
+    )
+    def test_power_refuses_with_a_message(self, args: list[str], capsys: pytest.CaptureFixture[str]) -> None:
+        """Impossible power inputs exit 2 with one line naming the option, never a traceback."""
+        assert main(args) == 2
+        err = capsys.readouterr().err
+        assert err.startswith("error: --") and "Traceback" not in err
+
+    def test_analyze_refuses_a_file_that_is_no_tidy_table(
+        self, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+    ) -> None:
+        """Given a workbook instead of tidy.csv, analyze says what it needs and exits 2."""
+        plan = make_plan(loads_spec(FLATWORM_SPEC, "s.toml"))
+        plan.save(tmp_path / "plan.json")
+        book = tmp_path / "entry.xlsx"
+        book.write_bytes(workbook_bytes(plan))
+        assert main(["analyze", str(tmp_path / "plan.json"), str(book)]) == 2
+        assert "is not a tidy table" in capsys.readouterr().err

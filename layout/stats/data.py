@@ -39,6 +39,10 @@ def load_checked(plan: Plan, where: str | Path, accept_errors: bool = False) -> 
     report_path = tidy_path.parent / "report.json"
     if not tidy_path.is_file():
         raise LayoutError(Problem(str(tidy_path), "", "no such file; give check's output folder or its tidy.csv"))
+    if tidy_path.suffix.lower() != ".csv":
+        raise LayoutError(
+            Problem(str(tidy_path), "", "is not a tidy table; give check's output folder or its tidy.csv")
+        )
     if not report_path.is_file():
         raise LayoutError(
             Problem(str(report_path), "", "no check report beside tidy.csv; run 'layout check' and analyse its folder")

@@ -41,3 +41,11 @@ def write_new(path: str | Path, data: bytes | str, force: bool = False) -> Path:
         Path(tmp).unlink(missing_ok=True)
         raise
     return target
+
+
+def write_all(folder: str | Path, files: dict[str, bytes | str], force: bool = False) -> list[Path]:
+    """Write several files into folder, all or none: every one is refused before any is written."""
+    out = Path(folder)
+    for name in files:
+        refuse_existing(out / name, force)
+    return [write_new(out / name, data, force) for name, data in files.items()]

@@ -36,6 +36,20 @@ TREATMENT_COLOURS: Final = (
 )
 
 
+def page_context(plan: Plan) -> dict[str, object]:
+    """What the head of every page shows: study, design, fingerprint, tool version, and the stylesheet."""
+    from layout.meta import __version__
+
+    return {
+        "study": plan.spec.study,
+        "design": plan.spec.design,
+        "fingerprint": plan.fingerprint,
+        "short_fp": plan.fingerprint[:12],
+        "version": __version__,
+        "css": stylesheet("print.css"),
+    }
+
+
 def printed_code(code: str) -> Markup:
     """A code for paper: zeros dotted, the check letter set apart by a margin (never a character).
 

@@ -6,11 +6,11 @@ import json
 from pathlib import Path
 from typing import Any, Final
 
-from layout.files import refuse_existing, write_new
+from layout.files import write_all
 from layout.intake.check import CheckResult
 from layout.meta import __version__
 from layout.plan import Plan
-from layout.render import BLOCK_COLOURS, map_cells, stylesheet, template_env
+from layout.render import BLOCK_COLOURS, map_cells, page_context, template_env
 
 # each status its own colour and its own mark, so the map reads in greyscale and without colour vision;
 # lightness steps apart (tests/test_check_command.py measures the greyscale contrast)
@@ -152,11 +152,7 @@ def report_html(plan: Plan, result: CheckResult, unblind: bool = False) -> str:
         template_env()
         .get_template("report.html")
         .render(
-            study=plan.spec.study,
-            design=plan.spec.design,
-            fingerprint=plan.fingerprint,
-            version=__version__,
-            css=stylesheet("print.css"),
+            **page_context(plan),
             summary=result.summary,
             findings=_grouped(result.findings),
             rounds=[r.name for r in plan.rounds],
@@ -177,11 +173,9 @@ def write_report(
     plan: Plan, result: CheckResult, out_dir: str | Path, force: bool = False, unblind: bool = False
 ) -> list[Path]:
     """Write report.json, report.html and tidy.csv; refuses existing files unless force."""
-    folder = Path(out_dir)
-    for name in REPORT_FILES:
-        refuse_existing(folder / name, force)
-    return [
-        write_new(folder / "report.json", report_json(result), force),
-        write_new(folder / "report.html", report_html(plan, result, unblind), force),
-        write_new(folder / "tidy.csv", result.tidy.to_csv(index=False, lineterminator="\n"), force),
+    texts = [
+        report_json(result),
+        report_html(plan, result, unblind),
+        result.tidy.to_csv(index=False, lineterminator="\n"),
     ]
+    return write_all(out_dir, dict(zip(REPORT_FILES, texts, strict=True)), force)

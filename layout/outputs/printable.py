@@ -11,12 +11,11 @@ from typing import Any, Final
 
 from markupsafe import Markup
 
-from layout.meta import __version__
 from layout.outputs.entry_table import EntryRow, Part, allowed_text, entry_rows
 from layout.outputs.labels import PAD_MM, LabelGeometry
 from layout.outputs.qr import qr_svg
 from layout.plan import Plan, Unit
-from layout.render import BLOCK_COLOURS, TREATMENT_COLOURS, map_cells, stylesheet, template_env
+from layout.render import BLOCK_COLOURS, TREATMENT_COLOURS, map_cells, page_context, template_env
 
 _SHEET_ROWS: Final = {
     ("a4", "portrait"): 26,
@@ -26,18 +25,6 @@ _SHEET_ROWS: Final = {
 }
 
 Tick = Callable[[], None]
-
-
-def _common(plan: Plan) -> dict[str, Any]:
-    s = plan.spec
-    return {
-        "study": s.study,
-        "design": s.design,
-        "fingerprint": plan.fingerprint,
-        "short_fp": plan.fingerprint[:12],
-        "version": __version__,
-        "css": stylesheet("print.css"),
-    }
 
 
 def position_text(u: Unit) -> str:
@@ -139,7 +126,7 @@ def render_sheets(plan: Plan, paper: str = "a4", part: Part | None = None) -> st
         template_env()
         .get_template("sheets.html")
         .render(
-            **_common(plan),
+            **page_context(plan),
             pages=pages,
             total=len(pages),
             responses=responses,
@@ -206,7 +193,7 @@ def render_labels(plan: Plan, geometry: LabelGeometry, units: bool = False, tick
         template_env()
         .get_template("labels.html")
         .render(
-            **_common(plan),
+            **page_context(plan),
             pages=_label_pages(items, geometry),
             g=geometry,
             page_w=page_w,
@@ -262,7 +249,7 @@ def render_map(plan: Plan, show_treatments: bool) -> str:
         template_env()
         .get_template("map.html")
         .render(
-            **_common(plan),
+            **page_context(plan),
             cells=cells,
             is_grid=is_grid,
             show_treatments=show_treatments,

@@ -7,10 +7,10 @@ import math
 from pathlib import Path
 from typing import Any, Final
 
-from layout.files import refuse_existing, write_new
+from layout.files import write_all
 from layout.meta import __version__
 from layout.plan import Plan
-from layout.render import stylesheet, template_env
+from layout.render import page_context, template_env
 
 ANALYSIS_FILES: Final = ("analysis.json", "analysis.html")
 
@@ -131,11 +131,7 @@ def analysis_html(plan: Plan, result: dict[str, Any]) -> str:
         template_env()
         .get_template("analysis.html")
         .render(
-            study=plan.spec.study,
-            design=plan.spec.design,
-            fingerprint=plan.fingerprint,
-            version=__version__,
-            css=stylesheet("print.css"),
+            **page_context(plan),
             result=result,
             plots=[_plot(r) for r in result["results"]],
             heats=[_heat(r) for r in result["results"]],
@@ -145,10 +141,6 @@ def analysis_html(plan: Plan, result: dict[str, Any]) -> str:
 
 
 def write_analysis(plan: Plan, result: dict[str, Any], folder: str | Path, force: bool = False) -> list[Path]:
-    out = Path(folder)
-    for name in ANALYSIS_FILES:
-        refuse_existing(out / name, force)
-    return [
-        write_new(out / "analysis.json", analysis_json(result), force),
-        write_new(out / "analysis.html", analysis_html(plan, result), force),
-    ]
+    """Write analysis.json and analysis.html; refuses existing files unless force."""
+    texts = [analysis_json(result), analysis_html(plan, result)]
+    return write_all(folder, dict(zip(ANALYSIS_FILES, texts, strict=True)), force)

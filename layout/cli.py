@@ -74,7 +74,9 @@ def print_plan_summary(plan: Plan, path: Path | None) -> None:
     blocks = f", {d.blocks} blocks" if d.blocks else ""
     out.print(f"design      {d.type}{blocks}, {len(spec.treatments)} treatments")
     per = "varying" if plan.subsamples_vary else str(d.most_subsamples)
-    out.print(f"units       {len(plan.units)} {d.units_word} × {per} {d.subsamples_word} = {len(plan.slots)} slots")
+    each = d.subsample_name if per == "1" else d.subsamples_word
+    slots = f"{len(plan.slots)} slot" + ("" if len(plan.slots) == 1 else "s")
+    out.print(f"units       {len(plan.units)} {d.units_word} × {per} {each} = {slots}")
     out.print(f"rounds      {', '.join(r.name for r in plan.rounds)} (order: {spec.collection.order})")
     out.print(f"seed        {plan.seed}")
     out.print(f"fingerprint {plan.fingerprint}")

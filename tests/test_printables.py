@@ -16,8 +16,9 @@ from pypdf import PdfReader
 from layout import Plan
 from layout.outputs import SheetOptions, write_sheets
 from layout.outputs.labels import LabelGeometry
+from layout.outputs.maps import render_map
 from layout.outputs.pdf import html_to_pdf
-from layout.outputs.printable import render_labels, render_map, render_sheets, sheet_pages
+from layout.outputs.printable import render_labels, render_sheets, sheet_pages
 
 DPI = 200
 MM_PER_PX = 25.4 / DPI
@@ -269,7 +270,8 @@ class TestMaps:
     def test_axis_names_landmark_and_block_outlines(self) -> None:
         """rows_are, cols_are and landmark from the spec are printed; cells on a block's edge get a thick border."""
         from layout import loads_spec, make_plan
-        from layout.outputs.printable import _outlines, map_cells
+        from layout.outputs.maps import outlines as _outlines
+        from layout.render import map_cells
 
         spec = loads_spec(
             '[study]\nid = "MP1"\ntitle = "m"\nseed = 1\n[design]\ntype = "rcbd"\nblocks = 2\ntreatments = ["a", "b", "c", "d"]\n'

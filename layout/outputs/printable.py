@@ -1,4 +1,4 @@
-"""The printable pages: collection sheets, labels and the map, rendered from templates.
+"""The printable pages: collection sheets and labels, rendered from templates.
 
 The data each page needs is prepared here; the templates only loop and format.
 """
@@ -15,7 +15,7 @@ from layout.outputs.entry_table import EntryRow, Part, allowed_text, entry_rows
 from layout.outputs.labels import PAD_MM, LabelGeometry
 from layout.outputs.qr import qr_svg
 from layout.plan import Plan, Unit
-from layout.render import BLOCK_COLOURS, TREATMENT_COLOURS, map_cells, page_context, template_env
+from layout.render import page_context, template_env
 
 _SHEET_ROWS: Final = {
     ("a4", "portrait"): 26,
@@ -203,71 +203,5 @@ def render_labels(plan: Plan, geometry: LabelGeometry, units: bool = False, tick
             font=font,
             line_font=line_font,
             kind="unit" if units else "slot",
-        )
-    )
-
-
-def _outlines(cells: list[list[Unit | None]]) -> dict[tuple[int, int], str]:
-    """(row, col) → CSS border widths: thick where the block changes, medium where the whole plot does."""
-    out = {}
-    for i, row in enumerate(cells):
-        for j, u in enumerate(row):
-            if u is None:
-                continue
-            sides = []
-            for di, dj in ((-1, 0), (0, 1), (1, 0), (0, -1)):  # top, right, bottom, left, as CSS orders them
-                ni, nj = i + di, j + dj
-                v = cells[ni][nj] if 0 <= ni < len(cells) and 0 <= nj < len(cells[ni]) else None
-                if v is None or v.block != u.block:
-                    sides.append("1mm")
-                elif v.whole_plot != u.whole_plot:
-                    sides.append("0.6mm")
-                else:
-                    sides.append("0.2mm")
-            out[(i, j)] = " ".join(sides)
-    return out
-
-
-def render_map(plan: Plan, show_treatments: bool) -> str:
-    """map.html (codes, blocks and whole plots outlined) or map-key.html (with treatments, for the lead)."""
-    cells, is_grid = map_cells(plan)
-    treatments = list(plan.spec.treatments)
-    colour = {t: TREATMENT_COLOURS[i % len(TREATMENT_COLOURS)] for i, t in enumerate(treatments)}
-    whole = next((f for f in plan.spec.factor if f.whole_plot), None)
-    if whole is not None:  # split-plot: colour by the whole-plot level, letter the sub-plot treatment
-        colour = {
-            t: TREATMENT_COLOURS[whole.levels.index(lv[whole.name]) % len(TREATMENT_COLOURS)]
-            for t, lv in plan.spec.treatment_levels()
-        }
-    blocks = sorted({u.block for u in plan.units if u.block is not None})
-    cols = max(len(r) for r in cells)
-    grid = plan.spec.layout
-    latin = plan.spec.design.type == "latin-square"
-    rows_are = (grid.rows_are if grid else None) or ("row" if not latin else "row")
-    cols_are = (grid.cols_are if grid else None) or "col"
-    return (
-        template_env()
-        .get_template("map.html")
-        .render(
-            **page_context(plan),
-            cells=cells,
-            is_grid=is_grid,
-            show_treatments=show_treatments,
-            treatment_colour=colour,
-            treatments=treatments,
-            whole_factor=whole.name if whole else None,
-            whole_levels=list(whole.levels) if whole else [],
-            whole_colour={lv: TREATMENT_COLOURS[k % len(TREATMENT_COLOURS)] for k, lv in enumerate(whole.levels)}
-            if whole
-            else {},
-            factor_names=" / ".join(f.name for f in plan.spec.factor),
-            blocks=blocks,
-            block_colour=lambda b: BLOCK_COLOURS[(b - 1) % len(BLOCK_COLOURS)] if b else "#f4f5f6",
-            outlines=_outlines(cells) if is_grid else {},
-            rows_are=rows_are,
-            cols_are=cols_are,
-            landmark=grid.landmark if grid else None,
-            orientation="landscape" if cols > 8 else "portrait",
-            walk=plan.spec.layout.walk if plan.spec.layout else None,
         )
     )

@@ -17,8 +17,9 @@ from layout.files import refuse_existing, write_new
 from layout.outputs.entry_table import Part, parts
 from layout.outputs.keyfile import key_csv
 from layout.outputs.labels import LabelGeometry
+from layout.outputs.maps import render_map
 from layout.outputs.pdf import choose_engine, html_to_pdf
-from layout.outputs.printable import render_labels, render_map, render_sheets
+from layout.outputs.printable import render_labels, render_sheets
 from layout.outputs.workbook import workbook_bytes
 from layout.plan import Plan
 

@@ -17,6 +17,7 @@ from layout.demo import run_demo
 from layout.errors import LayoutError, PlanError, UsageError
 from layout.intake.check import CheckResult, check_returns
 from layout.intake.findings import Severity
+from layout.intake.fixes import read_fixes
 from layout.intake.report import write_report
 from layout.meta import __version__
 from layout.outputs import PRODUCTS, SheetOptions, write_sheets
@@ -191,6 +192,14 @@ def print_check_summary(result: CheckResult, written: list[Path]) -> None:
         f"{errors} error(s), {s['by_severity']['warning']} warning(s), {s['by_severity']['info']} info",
         style="bold red" if errors else "bold green",
     )
+    if result.fixes:
+        out.print(f"{len(result.fixes)} approved fix(es) applied (listed in report.html; the files are unchanged)")
+    if result.proposals:
+        out.print(f"{len(result.proposals)} fix(es) proposed in fixes-proposed.csv: approve, then check with --fixes")
+    if result.fixes:
+        out.print(f"{len(result.fixes)} approved fix(es) applied (listed in report.html; the files are unchanged)")
+    if result.proposals:
+        out.print(f"{len(result.proposals)} fix(es) proposed in fixes-proposed.csv: approve, then check with --fixes")
     for path in written:
         out.print(f"  wrote {path}")
 
@@ -200,8 +209,13 @@ def _check(args: argparse.Namespace) -> int:
     for path in args.returned:
         if not Path(path).exists():
             raise UsageError(f"{path}: no such file; name the returned .xlsx and .csv files to check")
+    fixes = None
+    if args.fixes:
+        if not Path(args.fixes).is_file():
+            raise UsageError(f"{args.fixes}: no such fixes file")
+        fixes = read_fixes(args.fixes)
     with err.status("checking") as status:
-        result = check_returns(plan, args.returned, progress=lambda step: status.update(step))
+        result = check_returns(plan, args.returned, progress=lambda step: status.update(step), fixes=fixes)
     folder = Path(args.output) if args.output else Path(args.plan).parent / "checked"
     written = write_report(plan, result, folder, force=args.force, unblind=args.unblind)
     unread = [
@@ -353,6 +367,12 @@ def build_parser() -> argparse.ArgumentParser:
         help="folder for report.json, report.html, tidy.csv (default: checked/ beside the plan)",
     )
     check.add_argument("--force", action="store_true", help="replace an earlier report in that folder")
+    check.add_argument(
+        "--fixes",
+        metavar="FILE",
+        help="approved fixes (rows of fixes-proposed.csv, signed): applied to the rows as read; "
+        "the returned files are never changed",
+    )
     check.add_argument(
         "--unblind", action="store_true", help="group the report's plots by treatment even for a blind study"
     )

@@ -430,7 +430,13 @@ EXPECTED_ERRORS = {
 class TestEveryFinding:
     def test_every_kind_is_injected(self) -> None:
         """Every finding kind of the contract has a fault below or its own test in this file."""
-        own_tests = {"unreadable-file", "wrong-plan", "formula-cell", "possible-swap"}  # swap: test_robust
+        own_tests = {
+            "unreadable-file",
+            "wrong-plan",
+            "formula-cell",
+            "possible-swap",
+            "bad-fix",
+        }  # swap: test_robust; bad-fix: test_fixes
         assert {k.value for k in Kind} == {kind for _, _, kind, _ in FAULTS} | own_tests
 
     @pytest.mark.parametrize(("name", "make", "kind", "expect_code"), FAULTS, ids=[f[0] for f in FAULTS])

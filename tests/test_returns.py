@@ -33,7 +33,12 @@ def found(plan: Plan, path: Path) -> list[str]:
 def test_the_folder_covers_every_kind_a_single_csv_can_show() -> None:
     """Every finding kind has a file here, except those that need a workbook, two files or a spread of units."""
     named = {p.stem for p in CASES}
-    elsewhere = {"wrong-plan", "formula-cell", "possible-swap"}  # test_identity, test_check, test_robust
+    elsewhere = {
+        "wrong-plan",
+        "formula-cell",
+        "possible-swap",
+        "bad-fix",
+    }  # test_identity, test_check, test_robust, test_fixes
     assert {k.value for k in Kind} - elsewhere <= named
 
 

@@ -11,8 +11,11 @@ from typing import Any
 import pandas as pd
 
 from layout.intake.findings import Finding, Kind, Severity, finding
+from layout.intake.fix_apply import apply_keep_this
+from layout.intake.fixes import Applied, FixBook
 from layout.intake.gather import gather
 from layout.intake.merge import Key, Merged, completeness, merge_entries, missing_slots
+from layout.intake.proposals import propose_fixes
 from layout.intake.screen import statistical_findings
 from layout.intake.tidy import tidy_table
 from layout.plan import Plan
@@ -27,6 +30,8 @@ class CheckResult:
     summary: dict[str, Any]
     outliers: set[tuple[str, str, str]] = field(default_factory=set)  # (slot, round, response)
     swaps: set[tuple[str, str]] = field(default_factory=set)  # (unit, round)
+    fixes: list[Applied] = field(default_factory=list)  # the approved fixes applied, in the order applied
+    proposals: list[dict[str, Any]] = field(default_factory=list)  # rows of fixes-proposed.csv
 
     def __iter__(self) -> Iterator[Any]:
         """So that ``findings, tidy = check_returns(plan, paths)`` works."""
@@ -39,15 +44,21 @@ class CheckResult:
 
 
 def check_returns(
-    plan: Plan, paths: Sequence[str | Path], progress: Callable[[str], None] | None = None
+    plan: Plan,
+    paths: Sequence[str | Path],
+    progress: Callable[[str], None] | None = None,
+    fixes: FixBook | None = None,
 ) -> CheckResult:
     """Check returned .xlsx/.csv files against the plan; returns findings and the tidy table.
 
-    progress, when given, is called with a short description before each step.
+    progress, when given, is called with a short description before each step. fixes, when
+    given, are applied to the rows as read before anything is checked; the files are only read.
     """
     say = progress or (lambda _: None)
-    got = gather(plan, paths, say)
-    found = list(got.findings) + _columns_nowhere(plan, got.entries)
+    book = fixes or FixBook("")
+    got = gather(plan, paths, say, book)
+    found = apply_keep_this(got.entries, list(got.findings), got.keep_this, book)
+    found = book.bad + found + _columns_nowhere(plan, got.entries)
     say("merging and looking for missing slots")
     merged, merge_findings = merge_entries(plan, got.entries)
     found += merge_findings
@@ -59,7 +70,9 @@ def check_returns(
     stats, outliers, swaps = statistical_findings(plan, merged)
     found += stats
     tidy = tidy_table(plan, merged, got.unmatched)
-    return CheckResult(found, tidy, _summary(plan, found, merged, got.files), outliers, swaps)
+    result = CheckResult(found, tidy, _summary(plan, found, merged, got.files), outliers, swaps, book.applied)
+    result.proposals = propose_fixes(plan, result, merged, got.unmatched)
+    return result
 
 
 def _columns_nowhere(plan: Plan, entries: list[Any]) -> list[Finding]:

@@ -39,6 +39,7 @@ class Kind(StrEnum):
     MISSING_UNIT = "missing-unit"
     OUTLIER_SUBSAMPLE = "outlier-subsample"
     POSSIBLE_SWAP = "possible-swap"
+    BAD_FIX = "bad-fix"
 
 
 _WARNINGS = {

@@ -16,6 +16,8 @@ from typing import Any
 from layout.errors import UnreadableFile
 from layout.intake.columns import map_columns
 from layout.intake.findings import Finding, Kind, Severity, finding
+from layout.intake.fix_apply import apply_row_fixes
+from layout.intake.fixes import Fix, FixBook
 from layout.intake.origin import foreign_file
 from layout.intake.readers import ReturnedTable, read_returned
 from layout.intake.rows import Entry, PlanIndex, Unmatched, check_rows
@@ -32,6 +34,7 @@ class Gathered:
     unmatched: list[Unmatched] = field(default_factory=list)
     findings: list[Finding] = field(default_factory=list)
     files: list[dict[str, Any]] = field(default_factory=list)
+    keep_this: list[Fix] = field(default_factory=list)  # fixes that settle conflicts, applied after reading
 
     @property
     def unusable(self) -> list[str]:
@@ -50,10 +53,13 @@ def _digest(path: Path) -> str | None:
         return None
 
 
-def gather(plan: Plan, paths: Sequence[str | Path], say: Callable[[str], None]) -> Gathered:
-    """Every returned file read and its rows checked, in the order given."""
+def gather(
+    plan: Plan, paths: Sequence[str | Path], say: Callable[[str], None], fixes: FixBook | None = None
+) -> Gathered:
+    """Every returned file read, its approved row fixes applied, and its rows checked, in the order given."""
     idx = PlanIndex(plan)
     out = Gathered()
+    book = fixes or FixBook("")
     seen: dict[str, str] = {}
     for path in paths:
         name = str(path)
@@ -69,6 +75,7 @@ def gather(plan: Plan, paths: Sequence[str | Path], say: Callable[[str], None]) 
                 )
             )
             out.files.append({"file": name, "status": "same as " + seen[digest], "sha256": digest})
+            book.left_unused(book.for_file(name, digest), [], f"{name} is a copy of {seen[digest]}, read instead")
             continue
         if digest is not None:
             seen[digest] = name
@@ -81,16 +88,28 @@ def gather(plan: Plan, paths: Sequence[str | Path], say: Callable[[str], None]) 
                 finding(Kind.UNREADABLE_FILE, f"cannot be checked: {exc.problems[0].message}", file=name)
             )
             record["status"] = "unreadable"
+            book.left_unused(book.for_file(name, digest), [], f"{name} cannot be read")
             continue
         except OSError as exc:
             out.findings.append(finding(Kind.UNREADABLE_FILE, f"cannot be checked: {exc.strerror or exc}", file=name))
             record["status"] = "unreadable"
             continue
-        _rows_of(plan, idx, table, record, out)
+        mine = book.for_file(name, digest)
+        _rows_of(plan, idx, table, record, out, mine, book)
+        book.left_unused(mine, out.keep_this, f"the rows of {name} were not checked ({record['status']})")
+    book.aimed_nowhere([str(p) for p in paths])
     return out
 
 
-def _rows_of(plan: Plan, idx: PlanIndex, table: ReturnedTable, record: dict[str, Any], out: Gathered) -> None:
+def _rows_of(
+    plan: Plan,
+    idx: PlanIndex,
+    table: ReturnedTable,
+    record: dict[str, Any],
+    out: Gathered,
+    fixes: list[Fix],
+    book: FixBook,
+) -> None:
     name = table.file
     record.update({"sheet": table.sheet, "fingerprint": table.fingerprint, "rows": len(table.rows)})
     if table.fingerprint and table.fingerprint != plan.fingerprint:
@@ -139,7 +158,11 @@ def _rows_of(plan: Plan, idx: PlanIndex, table: ReturnedTable, record: dict[str,
                 file=name,
             )
         )
+    table, cols, traces, later = apply_row_fixes(plan, table, cols, fixes, book)
+    out.keep_this += later
     entries, unmatched, found = check_rows(table, cols, idx)
+    for row in (*entries, *unmatched):
+        row.fixes = list(traces.get(row.row, []))
     out.entries += entries
     out.unmatched += unmatched
     out.findings += found

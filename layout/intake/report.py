@@ -8,6 +8,7 @@ from typing import Any, Final
 
 from layout.files import write_all
 from layout.intake.check import CheckResult
+from layout.intake.proposals import proposals_csv
 from layout.meta import __version__
 from layout.plan import Plan
 from layout.render import BLOCK_COLOURS, map_cells, page_context, template_env
@@ -30,7 +31,7 @@ STATUS_MARKS: Final = {
     "error": "!",
     "missing": "✗",
 }
-REPORT_FILES: Final = ("report.json", "report.html", "tidy.csv")
+REPORT_FILES: Final = ("report.json", "report.html", "tidy.csv", "fixes-proposed.csv")
 
 
 def luminance(colour: str) -> float:
@@ -51,6 +52,7 @@ def report_json(result: CheckResult) -> str:
         "tool": {"name": "layout", "version": __version__},
         "summary": result.summary,
         "findings": [f.to_dict() for f in result.findings],
+        "fixes": [a.to_dict() for a in result.fixes],
     }
     return json.dumps(data, indent=1, ensure_ascii=False, default=str) + "\n"
 
@@ -165,6 +167,8 @@ def report_html(plan: Plan, result: CheckResult, unblind: bool = False) -> str:
             plots=_strip_plots(plan, result, unblind),
             block_colours=BLOCK_COLOURS,
             errors=result.errors,
+            fixes=result.fixes,
+            proposed=len(result.proposals),
         )
     )
 
@@ -177,5 +181,6 @@ def write_report(
         report_json(result),
         report_html(plan, result, unblind),
         result.tidy.to_csv(index=False, lineterminator="\n"),
+        "\ufeff" + proposals_csv(result.proposals),  # with a BOM, so Excel reads it as UTF-8
     ]
     return write_all(out_dir, dict(zip(REPORT_FILES, texts, strict=True)), force)

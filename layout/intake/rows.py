@@ -28,6 +28,7 @@ class Entry:
     errors: int = 0
     raw: dict[str, str] = field(default_factory=dict)  # response → the cell as typed ("" when blank)
     rejected: dict[str, str] = field(default_factory=dict)  # response → typed text that is not a valid value
+    fixes: list[str] = field(default_factory=list)  # ids of the approved fixes that shaped this row
 
     @property
     def filled(self) -> bool:
@@ -44,6 +45,7 @@ class Unmatched:
     file: str
     row: int
     why: str
+    fixes: list[str] = field(default_factory=list)
 
 
 class PlanIndex:

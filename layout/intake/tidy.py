@@ -58,6 +58,7 @@ def tidy_table(plan: Plan, merged: dict[Key, Merged], unmatched: list[Unmatched]
                 sources = (m.rows or m.blank_rows) if m else []
                 rec["source_file"] = "; ".join(dict.fromkeys(e.file for e in sources)) or None
                 rec["source_row"] = sources[0].row if sources else None
+                rec["fix"] = " ".join(dict.fromkeys(i for e in sources for i in e.fixes)) or None
                 records.append(rec)
     for x in unmatched:
         records.append(
@@ -67,6 +68,7 @@ def tidy_table(plan: Plan, merged: dict[Key, Merged], unmatched: list[Unmatched]
                 "note": f"{x.why}: " + "; ".join(f"{k}={v}" for k, v in x.cells.items()),
                 "source_file": x.file,
                 "source_row": x.row,
+                "fix": " ".join(x.fixes) or None,
             }
         )
     columns = [
@@ -89,6 +91,7 @@ def tidy_table(plan: Plan, merged: dict[Key, Merged], unmatched: list[Unmatched]
         "status",
         "source_file",
         "source_row",
+        "fix",
     ]
     frame = pd.DataFrame.from_records(records, columns=columns)
     for col in ("serial", "block", "row", "col", "whole_plot", "subsample", "source_row"):

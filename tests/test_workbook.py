@@ -182,3 +182,25 @@ class TestListsAfterLibreOffice:
         book.save(tmp_path / "filled.xlsx")
         result = check_returns(plan, [tmp_path / "filled.xlsx"])
         assert [f for f in result.findings if f.severity.value == "error"] == []
+
+
+def test_text_that_looks_like_a_formula_stays_text(tmp_path: Path) -> None:
+    """Names starting with = + - @ (a spec may hold them) are written as text cells, never as formulas
+    (OWASP, "CSV Injection": the same characters start a formula in a spreadsheet)."""
+    from layout import loads_spec, make_plan
+
+    spec = loads_spec(
+        '[study]\nid = "FM1"\ntitle = "=HYPERLINK(1)"\nseed = 2\n[design]\ntype = "crd"\nreplicates = 2\n'
+        'treatments = ["=1+1", "+2", "-3", "@SUM(A1)"]\nunit_name = "=pot"\n'
+        '[[response]]\nname = "="\nkind = "category"\nlevels = ["=a", "+b"]\nunit = "0"\n',
+        "fm.toml",
+    )
+    path = tmp_path / "entry.xlsx"
+    path.write_bytes(workbook_bytes(make_plan(spec)))
+    wb = openpyxl.load_workbook(path)  # openpyxl reads a stored formula back as data_type "f"
+    formulas = [
+        (ws.title, c.coordinate) for ws in wb.worksheets for row in ws.iter_rows() for c in row if c.data_type == "f"
+    ]
+    assert formulas == []
+    texts = {c.value for ws in wb.worksheets for row in ws.iter_rows() for c in row}
+    assert {"=1+1", "+2", "-3", "@SUM(A1)", "=a", "+b"} <= texts

@@ -16,6 +16,7 @@ from typing import Final
 
 from openpyxl import Workbook
 from openpyxl.cell import WriteOnlyCell
+from openpyxl.cell.cell import Cell
 from openpyxl.styles import Alignment, Border, Font, PatternFill, Protection, Side
 from openpyxl.utils import get_column_letter
 from openpyxl.worksheet._write_only import WriteOnlyWorksheet
@@ -44,8 +45,20 @@ LISTS_SHEET: Final = "lists"
 _WIDTHS: Final = {"code": 15, "unit": 13, "block": 7, "row": 6, "col": 6, "subsample": 11, "round": 10, "treatment": 16}
 
 
-def _cell(ws: WriteOnlyWorksheet, value: object, *, locked: bool = True, bold: bool = False) -> WriteOnlyCell:
+def _text_safe(ws: WriteOnlyWorksheet, value: object) -> WriteOnlyCell:
+    """A cell whose text stays text: openpyxl would store a string starting with '=' as a formula."""
     c = WriteOnlyCell(ws, value=value)
+    if isinstance(value, str):
+        c.data_type = "s"
+    return c
+
+
+def _row(ws: WriteOnlyWorksheet, values: list[object]) -> list[WriteOnlyCell]:
+    return [v if isinstance(v, Cell) else _text_safe(ws, v) for v in values]
+
+
+def _cell(ws: WriteOnlyWorksheet, value: object, *, locked: bool = True, bold: bool = False) -> WriteOnlyCell:
+    c = _text_safe(ws, value)
     c.border = _BOX
     if locked:
         c.fill = _SHADE
@@ -117,7 +130,7 @@ def _lists_sheet(wb: Workbook, lists: dict[str, list[str]]) -> None:
     ws.sheet_state = "hidden"
     names = list(lists)
     for i in range(max(len(v) for v in lists.values())):
-        ws.append([lists[n][i] if i < len(lists[n]) else None for n in names])
+        ws.append(_row(ws, [lists[n][i] if i < len(lists[n]) else None for n in names]))
 
 
 def _entry_sheet(wb: Workbook, plan: Plan, part: Part | None, lists: dict[str, str]) -> None:
@@ -158,11 +171,15 @@ def _entry_sheet(wb: Workbook, plan: Plan, part: Part | None, lists: dict[str, s
     last_col = get_column_letter(len(head))
     ws.auto_filter.ref = f"A1:{last_col}{last}"
     ws.print_area = f"A1:{last_col}{last}"
-    ws.append([_cell(ws, h, bold=True) for h in head])
+    ws.append(_row(ws, [_cell(ws, h, bold=True) for h in head]))
     inputs = len(plan.spec.response) + len(TRAILING)
     for row in rows:
         ws.append(
-            [_cell(ws, v) for v in structure_values(plan, row)] + [_cell(ws, None, locked=False) for _ in range(inputs)]
+            _row(
+                ws,
+                [_cell(ws, v) for v in structure_values(plan, row)]
+                + [_cell(ws, None, locked=False) for _ in range(inputs)],
+            )
         )
 
 
@@ -173,10 +190,10 @@ def _units_sheet(wb: Workbook, plan: Plan) -> None:
     for i, w in enumerate([12, 8, 7, 6, 6, 11, 11, 16], start=1):
         ws.column_dimensions[get_column_letter(i)].width = w
     ws.freeze_panes = "A2"
-    ws.append([_cell(ws, h, bold=True) for h in head])
+    ws.append(_row(ws, [_cell(ws, h, bold=True) for h in head]))
     for u in plan.units:
         values = [u.code, u.serial, u.block, u.row, u.col, u.whole_plot, len(plan.slots_of[u.code])]
-        ws.append(values + ([] if blind else [u.treatment]))
+        ws.append(_row(ws, values + ([] if blind else [u.treatment])))
 
 
 def _about_sheet(wb: Workbook, plan: Plan) -> None:
@@ -219,22 +236,22 @@ def _about_sheet(wb: Workbook, plan: Plan) -> None:
     ]
     lines += [(f"response: {r.header}", allowed_text(r)) for r in spec.response]
     for key, value in lines:
-        k = WriteOnlyCell(ws, value=key)
+        k = _text_safe(ws, key)
         k.font = _BOLD
-        v = WriteOnlyCell(ws, value=value)
+        v = _text_safe(ws, value)
         v.alignment = wrap
-        ws.append([k, v])
+        ws.append(_row(ws, [k, v]))
 
 
 def _hidden_sheet(wb: Workbook, plan: Plan) -> None:
     ws = wb.create_sheet(HIDDEN_SHEET)
     ws.sheet_state = "veryHidden"
-    ws.append(["format", ENTRY_FORMAT])
-    ws.append(["fingerprint", plan.fingerprint])
-    ws.append(["study", plan.spec.study.id])
-    ws.append(["slot", "unit", "subsample"])
+    ws.append(_row(ws, ["format", ENTRY_FORMAT]))
+    ws.append(_row(ws, ["fingerprint", plan.fingerprint]))
+    ws.append(_row(ws, ["study", plan.spec.study.id]))
+    ws.append(_row(ws, ["slot", "unit", "subsample"]))
     for s in plan.slots:
-        ws.append([s.code, s.unit, s.subsample])
+        ws.append(_row(ws, [s.code, s.unit, s.subsample]))
 
 
 def _stable_zip(data: bytes) -> bytes:

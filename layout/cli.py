@@ -196,10 +196,6 @@ def print_check_summary(result: CheckResult, written: list[Path]) -> None:
         out.print(f"{len(result.fixes)} approved fix(es) applied (listed in report.html; the files are unchanged)")
     if result.proposals:
         out.print(f"{len(result.proposals)} fix(es) proposed in fixes-proposed.csv: approve, then check with --fixes")
-    if result.fixes:
-        out.print(f"{len(result.fixes)} approved fix(es) applied (listed in report.html; the files are unchanged)")
-    if result.proposals:
-        out.print(f"{len(result.proposals)} fix(es) proposed in fixes-proposed.csv: approve, then check with --fixes")
     for path in written:
         out.print(f"  wrote {path}")
 
@@ -249,10 +245,18 @@ def _demo(args: argparse.Namespace) -> int:
             "planted mistakes, and checked both:"
         )
         print_check_summary(result.check, [])
+    if result.fixed is not None:
+        out.print(
+            f"\nThe check proposed {len(result.check.proposals)} fixes in {result.folder / 'checked' / 'fixes-proposed.csv'}. "
+            f"A demo lead approved {len(result.fixed.fixes)} (the mistyped code as the paper sheet has it; the workbook's side of the "
+            f"conflict) in {result.folder / 'returns' / 'fixes-approved.csv'}, and both files were checked "
+            "again with --fixes (the returned files are never changed):"
+        )
+        print_check_summary(result.fixed, [])
     if result.analysis is not None:
         out.print(
-            "\nThe re-typed CSV has planted errors, so the workbook alone was checked again (clean) into "
-            f"{result.folder / 'analysis'} and analysed: treatments tested against the experimental error."
+            f"\nThe corrected data in {result.folder / 'analysis'} were analysed: "
+            "treatments tested against the experimental error."
         )
         print_analysis({"results": result.analysis["results"][:1]})
     if result.power is not None:

@@ -71,6 +71,7 @@ class DemoResult:
     written: list[Path] = field(default_factory=list)
     pdf: bool = False
     check: Any = None
+    fixed: Any = None  # the check again, with the demo lead's approved fixes
     analysis: Any = None
     power: Any = None
 
@@ -98,14 +99,19 @@ def run_demo(folder: str | Path, force: bool = False, progress: bool = False) ->
 def _analysis(plan: Plan, out: Path, force: bool, result: DemoResult) -> list[Path]:
     """The re-typed CSV has planted errors; the workbook alone checks clean, so that check is analysed."""
     from layout.intake.check import check_returns
+    from layout.intake.fixes import read_fixes
     from layout.intake.report import write_report
     from layout.stats.analyze import analyze
     from layout.stats.data import load_checked
     from layout.stats.output import write_analysis
     from layout.stats.power import power_grid
 
-    clean = check_returns(plan, [out / "returns" / "entry-filled.xlsx"])
-    written = write_report(plan, clean, out / "analysis", force=force)
+    returns = [out / "returns" / "entry-filled.xlsx", out / "returns" / "recheck.csv"]
+    meant = plan.slots[5].code  # the code the re-typed row should have had (see _recheck_csv)
+    fixes = _approve_demo_fixes(result.check.proposals, meant, out / "returns" / "fixes-approved.csv", force)
+    clean = check_returns(plan, returns, fixes=read_fixes(fixes))
+    result.fixed = clean
+    written = [fixes, *write_report(plan, clean, out / "analysis", force=force)]
     checked = load_checked(plan, out / "analysis")
     result.analysis = analyze(plan, checked.tidy, checked.accepted)
     written += write_analysis(plan, result.analysis, out / "analysis", force=force)
@@ -125,6 +131,20 @@ def _analysis(plan: Plan, out: Path, force: bool, result: DemoResult) -> list[Pa
             ),
         )
     return written
+
+
+def _approve_demo_fixes(proposals: list[dict[str, Any]], meant: str, target: Path, force: bool) -> Path:
+    """The demo lead's fixes file: the mistyped code read as the paper sheet has it, and the workbook's
+    side of the conflict kept; signed with who, when and why."""
+    from layout.intake.proposals import proposals_csv
+
+    sign = {"approved_by": "demo lead", "approved_on": "2026-06-01", "reason": "looked up on the paper sheet"}
+    chosen = [
+        {**p, **sign, "value": p["value"] or meant} if p["action"] == "recode" else {**p, **sign}
+        for p in proposals
+        if p["action"] == "recode" or (p["action"] == "keep-this" and str(p["file"]).endswith(".xlsx"))
+    ]
+    return write_new(target, "\ufeff" + proposals_csv(chosen), force=force)
 
 
 # A second person re-typed three rows from their paper sheet: one agrees, one disagrees,

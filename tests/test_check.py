@@ -493,7 +493,7 @@ class TestEveryFinding:
         assert tidy.loc[(code, "r1"), "moisture"] == 12.5
 
     def test_formula_cell_in_ods_and_xls(self, plan: Plan, filled: Path, soffice: str, tmp_path: Path) -> None:
-        """.ods keeps formulas where layout finds them; .xls cannot say, and the check says so once."""
+        """.ods keeps formulas where layout finds them; .xls (where they cannot be found) is refused with what to do."""
         values = published_fill(plan)
         code = first_good(plan, values)
         path = edited(filled, tmp_path / "f.xlsx", _set(lambda p, v: code, "moisture (%)", "=10+2.5")(plan, values))
@@ -502,8 +502,8 @@ class TestEveryFinding:
         assert ("formula-cell", code) in kinds(result) and errors(result) == set()
         xls = libreoffice_convert(soffice, path, "xls", tmp_path / "xls")
         result = check_returns(plan, [xls])
-        notes = [f for f in result.findings if f.kind is Kind.FORMULA_CELL]
-        assert len(notes) == 1 and notes[0].severity is Severity.INFO and notes[0].code is None
+        refused = [f for f in result.findings if f.kind is Kind.UNREADABLE_FILE]
+        assert len(refused) == 1 and "save as .xlsx" in refused[0].message
 
 
 class TestSeveralFiles:

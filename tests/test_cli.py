@@ -112,6 +112,14 @@ class TestDemo:
             "key.csv",
         } <= made
         assert {"sheets.pdf", "labels.pdf", "unit-labels.pdf"} <= made  # the test extra installs WeasyPrint
+        # the fixes round trip: proposals from the first check, signed fixes, a clean check with them
+        assert (tmp_path / "d" / "checked" / "fixes-proposed.csv").exists()
+        assert (tmp_path / "d" / "returns" / "fixes-approved.csv").exists()
+        fixed = json.loads((tmp_path / "d" / "analysis" / "report.json").read_text(encoding="utf-8"))
+        assert fixed["summary"]["by_severity"]["error"] == 0
+        assert {f["action"] for f in fixed["fixes"]} == {"recode", "keep-this"}
+        first = json.loads((tmp_path / "d" / "checked" / "report.json").read_text(encoding="utf-8"))
+        assert first["summary"]["by_severity"]["error"] == 2
 
     def test_demo_twice_needs_force(self, tmp_path: Path) -> None:
         """Running the demo again into the same folder keeps what is there unless --force."""

@@ -16,6 +16,7 @@ from layout.intake.fixes import Applied, FixBook
 from layout.intake.gather import gather
 from layout.intake.merge import Key, Merged, completeness, merge_entries, missing_slots
 from layout.intake.proposals import propose_fixes
+from layout.intake.safety import DEFAULT_LIMITS, Limits
 from layout.intake.screen import statistical_findings
 from layout.intake.tidy import tidy_table
 from layout.plan import Plan
@@ -48,6 +49,7 @@ def check_returns(
     paths: Sequence[str | Path],
     progress: Callable[[str], None] | None = None,
     fixes: FixBook | None = None,
+    limits: Limits = DEFAULT_LIMITS,
 ) -> CheckResult:
     """Check returned .xlsx/.csv files against the plan; returns findings and the tidy table.
 
@@ -56,7 +58,7 @@ def check_returns(
     """
     say = progress or (lambda _: None)
     book = fixes or FixBook("")
-    got = gather(plan, paths, say, book)
+    got = gather(plan, paths, say, book, limits)
     found = apply_keep_this(got.entries, list(got.findings), got.keep_this, book)
     found = book.bad + found + _columns_nowhere(plan, got.entries)
     say("merging and looking for missing slots")

@@ -7,6 +7,7 @@ keep-this settles a conflicting slot once every file's rows are placed.
 from __future__ import annotations
 
 from dataclasses import replace
+from pathlib import Path
 from typing import Any
 
 from layout.codes import compact
@@ -120,7 +121,7 @@ def apply_keep_this(entries: list[Entry], findings: list[Finding], fixes: list[F
         settled.add(key)
         kept.fixes.append(f.fix)
         aside |= {(e.file, e.row) for e in others}
-        where = ", ".join(f"{e.file} row {e.row}" for e in others)
+        where = ", ".join(f"{Path(e.file).name} row {e.row}" for e in others)
         book.applied.append(Applied(f, f"{kept.slot.code} round {kept.round} taken from this row; set aside: {where}"))
     entries[:] = [e for e in entries if (e.file, e.row) not in aside]
     return [f for f in findings if f.row is None or (f.file, f.row) not in aside]

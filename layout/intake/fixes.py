@@ -18,6 +18,7 @@ from layout.errors import Problem, UnreadableFile, UsageError
 from layout.intake.findings import Finding, Kind, finding
 from layout.intake.readers import read_returned
 from layout.intake.values import is_blank
+from layout.spreadsheet_text import restored
 
 FIX_COLUMNS: Final = (
     "fix",
@@ -142,7 +143,7 @@ def _text(cell: Any) -> str:
         return cell.date().isoformat() if cell.time() == dt.time() else cell.isoformat()
     if isinstance(cell, dt.date):
         return cell.isoformat()
-    return str(cell).strip()
+    return restored(str(cell).strip())
 
 
 def read_fixes(path: str | Path) -> FixBook:

@@ -21,6 +21,7 @@ from layout.intake.fixes import Fix, FixBook
 from layout.intake.origin import foreign_file
 from layout.intake.readers import ReturnedTable, read_returned
 from layout.intake.rows import Entry, PlanIndex, Unmatched, check_rows
+from layout.intake.safety import DEFAULT_LIMITS, Limits
 from layout.plan import Plan
 
 UNUSABLE = ("unreadable", "wrong-plan", "not placed")
@@ -54,7 +55,11 @@ def _digest(path: Path) -> str | None:
 
 
 def gather(
-    plan: Plan, paths: Sequence[str | Path], say: Callable[[str], None], fixes: FixBook | None = None
+    plan: Plan,
+    paths: Sequence[str | Path],
+    say: Callable[[str], None],
+    fixes: FixBook | None = None,
+    limits: Limits = DEFAULT_LIMITS,
 ) -> Gathered:
     """Every returned file read, its approved row fixes applied, and its rows checked, in the order given."""
     idx = PlanIndex(plan)
@@ -82,7 +87,7 @@ def gather(
         record: dict[str, Any] = {"file": name, "sha256": digest}
         out.files.append(record)
         try:
-            table = read_returned(path)
+            table = read_returned(path, limits)
         except UnreadableFile as exc:
             out.findings.append(
                 finding(Kind.UNREADABLE_FILE, f"cannot be checked: {exc.problems[0].message}", file=name)
@@ -148,16 +153,6 @@ def _rows_of(
     if blocked:
         record["status"] = "not placed"
         return
-    if table.formulas_unknown:
-        out.findings.append(
-            finding(
-                Kind.FORMULA_CELL,
-                "in this binary workbook format layout cannot tell formulas from typed values; the last computed "
-                "values were read (save it as .xlsx or .ods to have formulas found)",
-                Severity.INFO,
-                file=name,
-            )
-        )
     table, cols, traces, later = apply_row_fixes(plan, table, cols, fixes, book)
     out.keep_this += later
     entries, unmatched, found = check_rows(table, cols, idx)

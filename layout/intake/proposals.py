@@ -16,6 +16,7 @@ from layout.intake.fixes import FIX_COLUMNS
 from layout.intake.merge import Key, Merged
 from layout.intake.rows import PlanIndex, Unmatched
 from layout.plan import Plan
+from layout.spreadsheet_text import neutral
 
 if TYPE_CHECKING:
     from layout.intake.check import CheckResult
@@ -56,8 +57,10 @@ def propose_fixes(
     for f in result.findings:
         if f.severity is not Severity.ERROR or f.file is None or f.row is None:
             continue
-        if f.kind in (Kind.BAD_CODE, Kind.UNKNOWN_CODE) and f.suggestion and " or " not in f.suggestion:
-            add(f.file, f.row, f.value or "", "code", "recode", f.suggestion, f.message)
+        if f.kind in (Kind.BAD_CODE, Kind.UNKNOWN_CODE) and f.suggestion:
+            # one suggestion is proposed as it is; among several the lead picks, so the value is left blank
+            one = " or " not in f.suggestion
+            add(f.file, f.row, f.value or "", "code", "recode", f.suggestion if one else "", f.message)
         elif f.kind is Kind.OUT_OF_RANGE and f.column:
             add(f.file, f.row, f.code or "", f.column, "set-value", "", f.message)
     for m in merged.values():
@@ -79,6 +82,6 @@ def proposals_csv(rows: list[dict[str, Any]]) -> str:
     buf = io.StringIO()
     writer = csv.writer(buf, lineterminator="\r\n")
     writer.writerow([*FIX_COLUMNS, "finding"])  # the last column says why; a fixes file may keep or drop it
-    for p in rows:
-        writer.writerow([*(p[c] for c in FIX_COLUMNS), p["_why"]])
+    for p in rows:  # opened in a spreadsheet: typed text must not become a formula there (read_fixes undoes it)
+        writer.writerow([neutral(v) for v in (*(p[c] for c in FIX_COLUMNS), p["_why"])])
     return buf.getvalue()

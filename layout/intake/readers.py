@@ -1,9 +1,10 @@
 """Read returned workbooks and CSV files, read-only, into plain rows of cells.
 
-Workbooks are read with python-calamine (values, including cached results of formulas);
-openpyxl in read-only mode is opened only when a sheet holds formulas, to say which cells
-they are. CSV files may be UTF-8 with or without a byte-order mark, comma, semicolon or
-tab separated; semicolon files may use decimal commas.
+Every file is first looked at by layout.intake.safety (its real format, archive limits, no
+DTD). Workbooks are then read with python-calamine (values, including cached results of
+formulas); openpyxl in read-only mode (which parses through defusedxml) is opened only when
+a sheet holds formulas, to say which cells they are. CSV files may be UTF-8 with or without
+a byte-order mark, comma, semicolon or tab separated; semicolon files may use decimal commas.
 """
 
 from __future__ import annotations
@@ -18,9 +19,9 @@ from typing import Any, Final
 from python_calamine import CalamineWorkbook
 
 from layout.errors import UnreadableFile
+from layout.intake.safety import DEFAULT_LIMITS, Limits, inspect_zip, refuse_non_workbook, sniff
 from layout.meta import HIDDEN_SHEET
 
-MAX_UNPACKED: Final = 512 * 1024 * 1024  # a workbook that unpacks larger than this is refused (zip bombs)
 HEADER_SEARCH_ROWS: Final = 20
 
 
@@ -37,22 +38,26 @@ class ReturnedTable:
     formulas: set[tuple[int, int]] = field(default_factory=set)
     decimal_comma: bool = False
     sheet: str | None = None
-    formulas_unknown: bool = False
 
 
 def _unreadable(p: Path, message: str) -> UnreadableFile:
     return UnreadableFile.at(str(p), "", message)
 
 
-def read_returned(path: str | Path) -> ReturnedTable:
-    """Read an .xlsx or .csv return; UnreadableFile when that cannot be done safely."""
+def read_returned(path: str | Path, limits: Limits = DEFAULT_LIMITS) -> ReturnedTable:
+    """Read an .xlsx, .xlsm, .ods or .csv return; UnreadableFile when that cannot be done safely.
+
+    An .xlsm is read for its values only; no macro is ever run (nothing in a file is).
+    """
     p = Path(path)
     if not p.is_file():
         raise _unreadable(p, "no such file" if not p.exists() else "not a file")
     suffix = p.suffix.lower()
     if suffix in (".xlsx", ".xlsm"):
+        inspect_zip(p, limits)
         return _read_xlsx(p)
     if suffix == ".ods":
+        inspect_zip(p, limits)
         table = _read_book(p, formulas=False)
         try:
             table.formulas = ods_formula_cells(p, table.sheet or "")
@@ -60,11 +65,10 @@ def read_returned(path: str | Path) -> ReturnedTable:
             table.formulas = set()
         return table
     if suffix in (".xls", ".xlsb"):
-        table = _read_book(p, formulas=False)
-        table.formulas_unknown = True  # the binary formats keep formulas where no reader here looks
-        return table
+        # binary formats: formulas cannot be told from typed values there, and their parsers are old attack surface
+        raise _unreadable(p, f"is in the binary Excel format ({suffix}), which is not read; open it and save as .xlsx")
     if suffix in (".csv", ".txt", ".tsv"):
-        return _read_csv(p)
+        return _read_csv(p, limits)
     raise _unreadable(p, f"not a workbook or CSV file (ending {suffix or 'none'}); return .xlsx, .ods or .csv files")
 
 
@@ -90,8 +94,6 @@ def _table(file: str, rows: list[list[Any]], **extra: Any) -> ReturnedTable:
 def _read_xlsx(p: Path) -> ReturnedTable:
     try:
         with zipfile.ZipFile(p) as z:
-            if sum(i.file_size for i in z.infolist()) > MAX_UNPACKED:
-                raise _unreadable(p, "unpacks to more than 512 MB; refused as unsafe")
             sheets_with_formulas = any(
                 n.startswith("xl/worksheets/") and (b"<f>" in (data := z.read(n)) or b"<f " in data)
                 for n in z.namelist()
@@ -146,7 +148,17 @@ def _formula_cells(p: Path, sheet: str) -> set[tuple[int, int]]:
     return found
 
 
-def _read_csv(p: Path) -> ReturnedTable:
+def _read_csv(p: Path, limits: Limits = DEFAULT_LIMITS) -> ReturnedTable:
+    kind = sniff(p)
+    if kind == "empty":
+        raise _unreadable(p, "is empty (0 bytes); the file was not saved or not copied completely")
+    if kind == "utf16":
+        raise _unreadable(p, "is UTF-16 text (Excel's 'Unicode Text'); save it as 'CSV UTF-8' instead")
+    if kind in ("zip", "ole"):
+        return_as = "a workbook" if kind == "zip" else "an old binary Excel workbook"
+        raise _unreadable(p, f"is {return_as}, not a CSV file; give it its own name (.xlsx) or save it as CSV")
+    if kind == "binary":
+        raise refuse_non_workbook(p, kind)
     raw = p.read_bytes()
     try:
         text = raw.decode("utf-8-sig")
@@ -154,22 +166,46 @@ def _read_csv(p: Path) -> ReturnedTable:
         raise _unreadable(p, f"is not UTF-8 text (byte {exc.start}); save it as 'CSV UTF-8'") from None
     if "\x00" in text:
         raise _unreadable(p, "holds NUL characters: not a text CSV file")
+    if not text.strip():
+        raise _unreadable(p, "holds no text (only blank lines)")
+    _line_lengths(p, text, limits)
     first = next((line for line in text.splitlines() if line.strip()), "")
     delimiter = max([",", ";", "\t"], key=first.count) if first else ","
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
     rows: list[list[Any]] = []
     numbers: list[int] = []
+    old_limit = csv.field_size_limit(limits.csv_line + 1)  # our own cell limit below says it more clearly
     try:
         for row in reader:
+            if any(len(cell) > limits.csv_field for cell in row):
+                raise _unreadable(
+                    p,
+                    f"line {reader.line_num} holds a cell longer than {limits.csv_field:,} characters; not a table of returns",
+                )
             rows.append(row)
             numbers.append(reader.line_num)
     except csv.Error as exc:
         raise _unreadable(p, f"is not valid CSV near line {reader.line_num}: {exc}") from None
+    finally:
+        csv.field_size_limit(old_limit)
     table = _table(str(p), rows, decimal_comma=delimiter == ";")
     # csv line numbers, not row indexes, so a quoted line break does not shift the row numbers
     offset = table.header_row
     table.rows = [(numbers[offset + i], r) for i, (_, r) in enumerate(table.rows)]
     return table
+
+
+def _line_lengths(p: Path, text: str, limits: Limits) -> None:
+    """Refuse a CSV with a line longer than the limit before the csv module holds it in a field."""
+    start = 0
+    number = 1
+    while start < len(text):
+        end = text.find("\n", start)
+        end = len(text) if end < 0 else end
+        if end - start > limits.csv_line:
+            raise _unreadable(p, f"line {number} is longer than {limits.csv_line:,} characters; not a table of returns")
+        start = end + 1
+        number += 1
 
 
 _ODS_TABLE = "{urn:oasis:names:tc:opendocument:xmlns:table:1.0}"

@@ -1,4 +1,7 @@
-"""key.csv: unit code → treatment and factor levels, for the study lead only."""
+"""key.csv: unit code → treatment and factor levels, for the study lead only.
+
+It is opened in a spreadsheet, so text that could start a formula is neutralised (OWASP).
+"""
 
 from __future__ import annotations
 
@@ -6,6 +9,7 @@ import csv
 import io
 
 from layout.plan import Plan
+from layout.spreadsheet_text import neutral
 
 
 def key_csv(plan: Plan) -> str:
@@ -23,8 +27,9 @@ def key_csv(plan: Plan) -> str:
     ]
     buf = io.StringIO()
     writer = csv.writer(buf, lineterminator="\n")
-    writer.writerow(columns)
+    writer.writerow([neutral(c) for c in columns])
     for u in plan.units:
         levels = [u.levels.get(f, "") for f in factors if f != "treatment"]
-        writer.writerow([u.code, u.serial, u.treatment, *levels, u.block, u.whole_plot, u.row, u.col])
+        cells = [u.code, u.serial, u.treatment, *levels, u.block, u.whole_plot, u.row, u.col]
+        writer.writerow([neutral(c) for c in cells])
     return buf.getvalue()

@@ -1,0 +1,150 @@
+"""Look at a returned file before any parser does: its real format, its size, and what its archive unpacks to.
+
+A workbook is a zip of XML parts. Before calamine or openpyxl open one, the zip's directory
+is checked against size and ratio limits (zip bombs), and every XML part is scanned for a
+document type declaration, which a workbook never needs and which is how entity-expansion
+("billion laughs") and external-entity attacks start. A file that fails is refused with a
+message that says what it is and what to do.
+"""
+
+from __future__ import annotations
+
+import zipfile
+import zlib
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Final
+
+from layout.errors import UnreadableFile
+
+MB: Final = 1024 * 1024
+_ZIP: Final = b"PK\x03\x04"
+_EMPTY_ZIP: Final = b"PK\x05\x06"
+_OLE: Final = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"  # the compound-file container of .xls and of encrypted workbooks
+# '<!DOCTYPE' and '<!ENTITY' as UTF-8 and as UTF-16 in both byte orders, any case a parser would accept
+_MARKS: Final = tuple(
+    word.encode(enc) for word in ("<!DOCTYPE", "<!doctype", "<!ENTITY") for enc in ("utf-8", "utf-16-le", "utf-16-be")
+)
+_OVERLAP: Final = 32
+
+
+@dataclass(frozen=True)
+class Limits:
+    """How large a returned file may be; every limit is far above a real study's returns."""
+
+    unpacked_total: int = 512 * MB  # all parts of one workbook, unpacked
+    unpacked_part: int = 256 * MB  # one part, unpacked
+    ratio: float = 1000.0  # unpacked ÷ packed of one part larger than 1 MB (bombs reach 10⁶)
+    parts: int = 10_000
+    csv_line: int = 1_000_000  # characters in one line of a CSV file
+    csv_field: int = 100_000  # characters in one cell of a CSV file
+
+
+DEFAULT_LIMITS: Final = Limits()
+
+
+def _refuse(path: Path, message: str) -> UnreadableFile:
+    return UnreadableFile.at(str(path), "", message)
+
+
+def sniff(path: Path) -> str:
+    """What the file really is from its first bytes: 'zip', 'ole', 'empty', 'utf16', 'text' or 'binary'."""
+    with path.open("rb") as fh:
+        head = fh.read(4096)
+    if not head:
+        return "empty"
+    if head.startswith((_ZIP, _EMPTY_ZIP)):
+        return "zip"
+    if head.startswith(_OLE):
+        return "ole"
+    if head.startswith((b"\xff\xfe", b"\xfe\xff")):
+        return "utf16"
+    if b"\x00" in head:
+        return "binary"
+    try:
+        head.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        if exc.start < len(head) - 4:  # not just a character cut at the end of the sample
+            return "binary"
+    return "text"
+
+
+def refuse_non_workbook(path: Path, kind: str) -> UnreadableFile:
+    """The message for a file named like a workbook whose content is something else."""
+    if kind == "empty":
+        return _refuse(path, "is empty (0 bytes); the file was not saved or not copied completely")
+    if kind == "ole":
+        if _is_encrypted(path):
+            return _refuse(
+                path, "is password-protected (encrypted) and cannot be read; remove the password and save it again"
+            )
+        return _refuse(path, "is an old binary Excel workbook (.xls); open it and save it as .xlsx")
+    if kind in ("text", "utf16"):
+        return _refuse(path, "is a text file, not a workbook (a CSV renamed?); give it a .csv name, or save as .xlsx")
+    return _refuse(path, "is not a workbook: its content is of no spreadsheet format (damaged, or another file)")
+
+
+def _is_encrypted(path: Path) -> bool:
+    """An encrypted Office file is a compound file holding a stream named EncryptedPackage."""
+    with path.open("rb") as fh:
+        data = fh.read(4 * MB)
+    return "EncryptedPackage".encode("utf-16-le") in data
+
+
+def inspect_zip(path: Path, limits: Limits = DEFAULT_LIMITS) -> None:
+    """Refuse a workbook whose zip is damaged, too large, too compressed, or holds a DTD in any XML part."""
+    kind = sniff(path)
+    if kind != "zip":
+        raise refuse_non_workbook(path, kind)
+    try:
+        with zipfile.ZipFile(path) as z:
+            infos = z.infolist()
+            if len(infos) > limits.parts:
+                raise _refuse(path, f"holds {len(infos)} parts, more than {limits.parts}; refused as unsafe")
+            total = sum(i.file_size for i in infos)
+            if total > limits.unpacked_total:
+                raise _refuse(
+                    path, f"unpacks to {total // MB} MB, more than {limits.unpacked_total // MB} MB; refused as unsafe"
+                )
+            for i in infos:
+                _check_part(path, z, i, limits)
+    except zipfile.BadZipFile:
+        raise _refuse(
+            path, "is a damaged workbook (cut short while copying or saving?); save or copy it again"
+        ) from None
+    except (zlib.error, EOFError):
+        raise _refuse(path, "is a damaged workbook: a part cannot be unpacked; save or copy it again") from None
+    except NotImplementedError as exc:
+        raise _refuse(path, f"uses a zip feature no reader here supports ({exc}); save it again as .xlsx") from None
+
+
+def _check_part(path: Path, z: zipfile.ZipFile, info: zipfile.ZipInfo, limits: Limits) -> None:
+    if info.file_size > limits.unpacked_part:
+        raise _refuse(
+            path,
+            f"part {info.filename} unpacks to {info.file_size // MB} MB, more than "
+            f"{limits.unpacked_part // MB} MB; refused as unsafe",
+        )
+    if info.file_size > MB and info.file_size > limits.ratio * max(info.compress_size, 1):
+        raise _refuse(
+            path,
+            f"part {info.filename} is compressed {info.file_size // max(info.compress_size, 1)} to 1, "
+            f"more than {limits.ratio:g} to 1 (a zip bomb?); refused as unsafe",
+        )
+    if not info.filename.lower().endswith((".xml", ".rels", ".vml")):
+        return
+    seen = 0
+    tail = b""
+    with z.open(info) as fh:  # read in blocks, never more than the declared size
+        while block := fh.read(1 << 20):
+            seen += len(block)
+            if seen > info.file_size:
+                raise _refuse(path, f"part {info.filename} unpacks larger than its zip entry says; refused as unsafe")
+            window = tail + block
+            if any(mark in window for mark in _MARKS):
+                raise _refuse(
+                    path,
+                    f"part {info.filename} declares a document type (DTD); workbooks never need one and it can "
+                    "hide entity attacks, so the file is refused; save it again from Excel or LibreOffice",
+                )
+            tail = window[-_OVERLAP:]

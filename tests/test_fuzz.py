@@ -29,7 +29,7 @@ from typing import Any
 
 import openpyxl
 import pytest
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from openpyxl.utils.exceptions import IllegalCharacterError
 
@@ -97,7 +97,14 @@ def corpus(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Any]:
     wb.close()
     text = io.StringIO()
     csv.writer(text).writerows(rows)
-    return {"plan": plan, "plan_path": folder / "plan.json", "xlsx": book.read_bytes(), "csv": text.getvalue()}
+    return Corpus(plan=plan, plan_path=folder / "plan.json", xlsx=book.read_bytes(), csv=text.getvalue())
+
+
+class Corpus(dict):
+    """The base files; shown by name only when hypothesis reports a failing case."""
+
+    def __repr__(self) -> str:
+        return "corpus"
 
 
 def run_check(corpus: dict[str, Any], name: str, data: bytes) -> int:
@@ -169,7 +176,10 @@ def edit_cells(xlsx: bytes, edits: list[tuple[float, float, Any]]) -> bytes:
         with contextlib.suppress(ValueError, TypeError, IllegalCharacterError):  # openpyxl refuses some values
             cell.value = value
     buf = io.BytesIO()
-    wb.save(buf)
+    try:
+        wb.save(buf)
+    except Exception:  # openpyxl cannot write some control characters: not a case layout ever sees
+        assume(False)
     return buf.getvalue()
 
 

@@ -89,6 +89,22 @@ def _ole(encrypted: bool) -> bytes:
     return b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1" + bytes(504) + name + bytes(4096)
 
 
+def _date_out_of_range(good: Path, target: Path) -> Path:
+    """A value cell formatted as a date whose serial number lies beyond any calendar (found by the fuzzer:
+    python-calamine panics on it, and a panic is no Exception)."""
+    import datetime as dt
+
+    import openpyxl
+
+    wb = openpyxl.load_workbook(good)
+    ws = wb["entry"]
+    ws.protection.sheet = False
+    ws.cell(2, ws.max_column).value = dt.datetime(2020, 1, 1)
+    ws.cell(2, ws.max_column).value = -1.1e11
+    wb.save(target)
+    return target
+
+
 # name → (file name, how to make it from the good workbook, words the message must hold)
 CASES: dict[str, tuple[str, Callable[[Path, Path], Path | bytes], str]] = {
     "empty-xlsx": ("e.xlsx", lambda g, t: b"", "is empty"),
@@ -123,6 +139,7 @@ CASES: dict[str, tuple[str, Callable[[Path, Path], Path | bytes], str]] = {
         ),
         "document type",
     ),  # fmt: skip
+    "date-out-of-range": ("d.xlsx", _date_out_of_range, "out of any range"),
     "zip-bomb": (
         "bomb.xlsx",
         lambda g, t: _rezip(g, t, lambda n, d: d, {"xl/media/bomb.bin": bytes(300 * 1024 * 1024)}),

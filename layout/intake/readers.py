@@ -123,6 +123,10 @@ def _read_book(p: Path, formulas: bool) -> ReturnedTable:
         raise
     except Exception as exc:  # calamine raises its own error types for damaged files
         raise _unreadable(p, f"cannot be read as a workbook ({type(exc).__name__}: {exc})") from None
+    except BaseException as exc:  # a panic in calamine's Rust code (a date out of range) is no Exception
+        if isinstance(exc, (KeyboardInterrupt, SystemExit, GeneratorExit)):
+            raise
+        raise _unreadable(p, f"cannot be read as a workbook: a cell holds a value out of any range ({exc})") from None
     table = _table(str(p), [list(r) for r in rows], fingerprint=fingerprint, study=study, sheet=name)
     if formulas:
         try:

@@ -226,7 +226,7 @@ def main() -> int:
         if name in s and f"{name}-baseline" in s
     }
     figures["ratios"] = ratios
-    table = Table(title="layout benchmark (median of %d)" % args.reps)
+    table = Table(title=f"layout benchmark (median of {args.reps})")
     for col in ("step", "what", "s", "process s", "peak MiB", "ratio"):
         table.add_column(col, justify="left" if col in ("step", "what") else "right")
     for name, f in s.items():

@@ -8,19 +8,17 @@ import sys
 from collections import Counter
 from collections.abc import Callable, Sequence
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from rich.console import Console
 from rich.table import Table
 
 from layout.cli_stats import add_commands, print_analysis
-from layout.demo import run_demo
 from layout.errors import LayoutError, PlanError, UsageError
-from layout.intake.check import CheckResult, check_returns
-from layout.intake.findings import Severity
-from layout.intake.fixes import read_fixes
-from layout.intake.report import write_report
-from layout.meta import __version__
-from layout.outputs import PRODUCTS, SheetOptions, write_sheets
+from layout.meta import PRODUCTS, __version__
+
+if TYPE_CHECKING:
+    from layout.intake.check import CheckResult
 from layout.outputs.labels import LabelGeometry, parse_pair
 from layout.plan import Plan, load_plan, make_plan
 from layout.spec import MAX_SEED, load_spec
@@ -135,6 +133,8 @@ def _label_geometry(args: argparse.Namespace) -> LabelGeometry:
 
 
 def _sheets(args: argparse.Namespace) -> int:
+    from layout.outputs import SheetOptions, write_sheets
+
     plan = load_plan(args.plan)
     only = tuple(p.strip() for p in args.only.split(",") if p.strip()) if args.only else PRODUCTS
     options = SheetOptions(
@@ -163,6 +163,8 @@ def _sheets(args: argparse.Namespace) -> int:
 
 
 def print_check_summary(result: CheckResult, written: list[Path]) -> None:
+    from layout.intake.findings import Severity
+
     """Counts by kind and the first findings."""
     s = result.summary
     out.print(
@@ -201,6 +203,10 @@ def print_check_summary(result: CheckResult, written: list[Path]) -> None:
 
 
 def _check(args: argparse.Namespace) -> int:
+    from layout.intake.check import check_returns
+    from layout.intake.fixes import read_fixes
+    from layout.intake.report import write_report
+
     plan = load_plan(args.plan)
     for path in args.returned:
         if not Path(path).exists():
@@ -234,6 +240,8 @@ def _check(args: argparse.Namespace) -> int:
 
 
 def _demo(args: argparse.Namespace) -> int:
+    from layout.demo import run_demo
+
     result = run_demo(args.folder, force=args.force, progress=True)
     print_plan_summary(result.plan, None)
     out.print(f"\nThe demo wrote {len(result.written)} files into {result.folder}:")

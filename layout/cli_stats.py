@@ -12,10 +12,6 @@ from rich.table import Table
 
 from layout.errors import LayoutError, Problem, UsageError
 from layout.plan import load_plan
-from layout.stats.analyze import analyze
-from layout.stats.data import load_checked
-from layout.stats.output import fmt, write_analysis
-from layout.stats.power import power_grid
 
 out = Console()
 
@@ -33,6 +29,10 @@ _EPILOG_POWER = """example:
 
 
 def _analyze(args: argparse.Namespace) -> int:
+    from layout.stats.analyze import analyze
+    from layout.stats.data import load_checked
+    from layout.stats.output import write_analysis
+
     plan = load_plan(args.plan)
     checked = load_checked(plan, args.checked, accept_errors=args.accept_errors)
     result = analyze(plan, checked.tidy, checked.accepted)
@@ -47,6 +47,8 @@ def _analyze(args: argparse.Namespace) -> int:
 
 
 def print_analysis(result: dict[str, Any]) -> None:
+    from layout.stats.output import fmt
+
     """One ANOVA table per response and round, with the error term of each F."""
     for r in result["results"]:
         out.print(f"\n{r['response']}, round {r['round']} ({r['method']})", style="bold")
@@ -99,6 +101,8 @@ def _components_from(path: str, response: str, rnd: str | None) -> tuple[float, 
 
 
 def _power(args: argparse.Namespace) -> int:
+    from layout.stats.power import power_grid
+
     if args.from_analysis:
         if not args.response:
             raise UsageError("--from needs --response NAME")

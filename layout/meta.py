@@ -8,3 +8,4 @@ __version__: Final = "0.2.0"
 PLAN_FORMAT: Final = "layout-plan/2"
 ENTRY_FORMAT: Final = "layout-entry/2"
 HIDDEN_SHEET: Final = "layout_plan"  # the very hidden sheet of entry.xlsx
+PRODUCTS: Final = ("entry", "sheets", "labels", "map", "key")  # what `layout sheets` can write

@@ -12,7 +12,7 @@ from __future__ import annotations
 import hashlib
 import json
 import secrets
-from dataclasses import asdict, dataclass
+from dataclasses import dataclass
 from functools import cached_property
 from pathlib import Path
 from typing import Any, Final
@@ -24,6 +24,7 @@ from layout.codes import CHECK_LETTERS, MODULUS, SCHEME, serial_width, slot_code
 from layout.designs import collection_order, randomize
 from layout.errors import PlanError
 from layout.files import write_new
+from layout.jsontext import BIG_LISTS, canonical_bytes, readable_json
 from layout.meta import PLAN_FORMAT, __version__
 from layout.rng import ALGORITHM, Stream
 from layout.spec import Spec
@@ -90,15 +91,42 @@ class Plan:
             "codes": {"scheme": SCHEME, "letters": CHECK_LETTERS, "salt": self.salt},
             "replaces": self.replaces,
             "spec": self.spec_json if self.spec_json is not None else self.spec.model_dump(mode="json"),
-            "units": [asdict(u) for u in self.units],
-            "slots": [asdict(s) for s in self.slots],
+            # built field by field: dataclasses.asdict deep-copies and costs seconds at 100,000 slots
+            "units": [
+                {
+                    "code": u.code,
+                    "serial": u.serial,
+                    "treatment": u.treatment,
+                    "levels": dict(u.levels),
+                    "block": u.block,
+                    "replicate": u.replicate,
+                    "row": u.row,
+                    "col": u.col,
+                    "whole_plot": u.whole_plot,
+                    "walk": u.walk,
+                }
+                for u in self.units
+            ],  # fmt: skip
+            "slots": [{"code": s.code, "unit": s.unit, "subsample": s.subsample} for s in self.slots],
             "rounds": [{"name": r.name, "order": list(r.order)} for r in self.rounds],
         }
 
     @cached_property
+    def _content(self) -> dict[str, Any]:
+        return self.content()
+
+    @cached_property
+    def _simple_parts(self) -> frozenset[str]:
+        """The big lists, which this class builds from strings and small whole numbers only, so they need no
+        value-by-value look before the fast JSON path; unless a factor name lies outside the Basic
+        Multilingual Plane, where RFC 8785 sorts keys differently."""
+        names = [f.name for f in self.spec.factor] + ["treatment"]
+        return frozenset(BIG_LISTS) if all(max(map(ord, n)) < 0xD800 for n in names) else frozenset()
+
+    @cached_property
     def fingerprint(self) -> str:
         """SHA-256 hex of the canonical content."""
-        return _fingerprint(self.content())
+        return hashlib.sha256(canonical(self._content, self._simple_parts)).hexdigest()
 
     @cached_property
     def unit_by_code(self) -> dict[str, Unit]:
@@ -121,53 +149,17 @@ class Plan:
     def to_json(self) -> str:
         """The plan file's text: readable, stable, ending in a newline."""
         data = {"format": FORMAT, "fingerprint": self.fingerprint, "tool": {"name": "layout", "version": __version__}}
-        data.update(self.content())
-        return _readable_json(data)
+        data.update(self._content)
+        return readable_json(data, self._simple_parts)
 
     def save(self, path: str | Path, force: bool = False) -> Path:
         """Write plan.json; refuses to replace an existing file unless force."""
         return write_new(path, self.to_json(), force=force)
 
 
-def _readable_json(data: dict[str, Any]) -> str:
-    """Indented JSON, with one line per unit, slot and round so diffs stay readable; numbers as RFC 8785 writes them."""
-    parts = []
-    for key, value in data.items():
-        if key in ("units", "slots", "rounds"):
-            items = ",\n".join("  " + _inline(item) for item in value)
-            text = f"[\n{items}\n ]"
-        else:
-            text = _indented(value, 1)
-        parts.append(f" {_scalar(key)}: {text}")
-    return "{\n" + ",\n".join(parts) + "\n}\n"
-
-
-def _scalar(value: Any) -> str:
-    return rfc8785.dumps(value).decode("utf-8")
-
-
-def _inline(value: Any) -> str:
-    if isinstance(value, dict):
-        return "{" + ", ".join(f"{_scalar(k)}: {_inline(v)}" for k, v in value.items()) + "}"
-    if isinstance(value, list | tuple):
-        return "[" + ", ".join(_inline(v) for v in value) + "]"
-    return _scalar(value)
-
-
-def _indented(value: Any, depth: int) -> str:
-    pad = " " * (depth + 1)
-    if isinstance(value, dict) and value:
-        inner = ",\n".join(f"{pad}{_scalar(k)}: {_indented(v, depth + 1)}" for k, v in value.items())
-        return "{\n" + inner + "\n" + " " * depth + "}"
-    if isinstance(value, list | tuple) and value and any(isinstance(v, dict | list) for v in value):
-        inner = ",\n".join(pad + _indented(v, depth + 1) for v in value)
-        return "[\n" + inner + "\n" + " " * depth + "]"
-    return _inline(value)
-
-
-def canonical(data: dict[str, Any]) -> bytes:
+def canonical(data: dict[str, Any], simple: frozenset[str] = frozenset()) -> bytes:
     """The fingerprinted bytes: RFC 8785 canonical JSON of the plan without fingerprint and tool."""
-    return rfc8785.dumps({k: v for k, v in data.items() if k not in _UNFINGERPRINTED})
+    return canonical_bytes({k: v for k, v in data.items() if k not in _UNFINGERPRINTED}, simple)
 
 
 def _fingerprint(data: dict[str, Any]) -> str:

@@ -9,8 +9,11 @@ import re
 from pathlib import Path
 
 import pytest
+import rfc8785
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
-from layout import PlanError, load_plan, load_spec, loads_spec, make_plan
+from layout import Plan, PlanError, load_plan, load_spec, loads_spec, make_plan
 from layout.codes import parse_code
 from layout.errors import OutputExists
 
@@ -182,3 +185,47 @@ class TestLaterVersions:
         path = tmp_path / "old.json"
         path.write_text(json.dumps(data), encoding="utf-8")
         assert load_plan(path).fingerprint == data["fingerprint"]
+
+
+class TestFastJson:
+    """layout.jsontext writes the big lists with the json module; rfc8785 (the reference library
+    for RFC 8785) must give the same bytes for every input."""
+
+    @settings(max_examples=300, deadline=None)
+    @given(
+        st.dictionaries(
+            st.sampled_from(["units", "slots", "rounds", "spec", "seed"]),
+            st.lists(
+                st.dictionaries(
+                    st.text(max_size=6),
+                    st.one_of(
+                        st.none(),
+                        st.booleans(),
+                        st.text(),
+                        st.integers(-(2**60), 2**60),
+                        st.floats(allow_nan=False, allow_infinity=False),
+                        st.lists(st.text(), max_size=3),
+                    ),
+                    max_size=5,
+                ),
+                max_size=4,
+            ),
+        )  # fmt: skip
+    )
+    def test_canonical_bytes_equal_rfc8785(self, data: dict) -> None:
+        from layout.jsontext import canonical_bytes
+
+        try:
+            expected = rfc8785.dumps(data)
+        except rfc8785.CanonicalizationError:
+            return  # integers beyond 2^53: the reference refuses them, and a plan never holds them
+        assert canonical_bytes(data) == expected
+
+    def test_unit_fields_are_all_in_the_content(self, rcbd_plan: Plan) -> None:
+        """The hand-built unit and slot dicts keep every dataclass field, in order."""
+        from dataclasses import asdict
+
+        content = rcbd_plan.content()
+        assert content["units"] == [asdict(u) for u in rcbd_plan.units]
+        assert content["slots"] == [asdict(s) for s in rcbd_plan.slots]
+        assert list(content["units"][0]) == list(asdict(rcbd_plan.units[0]))

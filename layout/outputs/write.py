@@ -7,13 +7,13 @@ from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field, replace
 from pathlib import Path
-from typing import Final
 
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
 from layout.errors import UsageError
 from layout.files import refuse_existing, write_new
+from layout.meta import PRODUCTS
 from layout.outputs.entry_table import Part, parts
 from layout.outputs.keyfile import key_csv
 from layout.outputs.labels import LabelGeometry
@@ -22,8 +22,6 @@ from layout.outputs.pdf import choose_engine, html_to_pdf
 from layout.outputs.printable import render_labels, render_sheets
 from layout.outputs.workbook import workbook_bytes
 from layout.plan import Plan
-
-PRODUCTS: Final = ("entry", "sheets", "labels", "map", "key")
 
 
 @dataclass(frozen=True)

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import re
 from dataclasses import dataclass
+from functools import lru_cache
 from typing import Final
 
 from layout.names import STRUCTURE_COLUMNS, TRAILING_COLUMNS
@@ -29,6 +30,11 @@ class EntryRow:
 
 def structure_columns(plan: Plan) -> list[str]:
     """Structure columns the design fills: no block without blocks, no row and col without a grid, no treatment when blind."""
+    return list(_structure_columns(plan))
+
+
+@lru_cache(maxsize=16)  # asked once per row of the sheet; a Plan hashes by identity
+def _structure_columns(plan: Plan) -> tuple[str, ...]:
     cols = list(STRUCTURE)
     if all(u.block is None for u in plan.units):
         cols.remove("block")
@@ -37,7 +43,7 @@ def structure_columns(plan: Plan) -> list[str]:
         cols.remove("col")
     if not plan.spec.study.blind:
         cols.append("treatment")
-    return cols
+    return tuple(cols)
 
 
 def shown_header(plan: Plan, name: str) -> str:
@@ -108,7 +114,7 @@ def structure_values(plan: Plan, row: EntryRow) -> list[object]:
         "round": row.round,
         "treatment": u.treatment,
     }
-    return [every[c] for c in structure_columns(plan)]
+    return [every[c] for c in _structure_columns(plan)]
 
 
 def allowed_text(r: Response) -> str:

@@ -11,6 +11,7 @@ from __future__ import annotations
 import io
 import re
 import zipfile
+from copy import copy
 from datetime import datetime
 from typing import Final
 
@@ -57,8 +58,8 @@ def _row(ws: WriteOnlyWorksheet, values: list[object]) -> list[WriteOnlyCell]:
     return [v if isinstance(v, Cell) else _text_safe(ws, v) for v in values]
 
 
-def _cell(ws: WriteOnlyWorksheet, value: object, *, locked: bool = True, bold: bool = False) -> WriteOnlyCell:
-    c = _text_safe(ws, value)
+def _styled(ws: WriteOnlyWorksheet, *, locked: bool, bold: bool) -> WriteOnlyCell:
+    c = WriteOnlyCell(ws)
     c.border = _BOX
     if locked:
         c.fill = _SHADE
@@ -66,6 +67,18 @@ def _cell(ws: WriteOnlyWorksheet, value: object, *, locked: bool = True, bold: b
         c.protection = _OPEN
     if bold:
         c.font = _BOLD
+    return c
+
+
+def _cell(ws: WriteOnlyWorksheet, value: object, *, locked: bool = True, bold: bool = False) -> WriteOnlyCell:
+    """A boxed cell, shaded and locked or white and open. Its style is copied from a template cell made
+    once per sheet and kind: setting border, fill and protection one by one costs ten times as much."""
+    templates = ws.__dict__.setdefault("_layout_templates", {})  # kept on the sheet: styles index its workbook
+    template = templates.get((locked, bold))
+    if template is None:
+        template = templates[(locked, bold)] = _styled(ws, locked=locked, bold=bold)
+    c = _text_safe(ws, value)
+    c._style = copy(template._style)
     return c
 
 

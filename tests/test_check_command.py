@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 
 import pytest
@@ -197,3 +198,27 @@ class TestReportIsPrintSafe:
         main(["check", str(plan), str(filled), str(bad), "-o", str(tmp_path / "r")])
         html = (tmp_path / "r" / "report.html").read_text(encoding="utf-8")
         assert f">{bad.name}</td>" in html and f"<td>{bad}</td>" in html
+
+
+class TestLargeStudies:
+    def test_report_html_summarises_beyond_its_limits(
+        self, tmp_path: Path, rcbd_plan: Plan, monkeypatch: pytest.MonkeyPatch, setup: tuple[Path, Path]
+    ) -> None:
+        """Past the limits (lowered here) report.html lists the first findings and says how many more,
+        counts units by status instead of drawing them, and leaves the plots out; report.json keeps all."""
+        from layout.intake import report
+
+        monkeypatch.setattr(report, "MAX_FINDINGS_SHOWN", 2)
+        monkeypatch.setattr(report, "MAX_MAP_UNITS", 3)
+        monkeypatch.setattr(report, "MAX_PLOT_UNITS", 3)
+        plan_path, _ = setup
+        empty = tmp_path / "half.csv"
+        empty.write_text("code,moisture\n" + "".join(f"{s.code},\n" for s in rcbd_plan.slots[:5]), encoding="utf-8")
+        assert main(["check", str(plan_path), str(empty), "-o", str(tmp_path / "c")]) == 1
+        data = json.loads((tmp_path / "c" / "report.json").read_text(encoding="utf-8"))
+        html = (tmp_path / "c" / "report.html").read_text(encoding="utf-8")
+        assert len(data["findings"]) > 2
+        shown_and_left = re.search(r"<b>(\d+) more findings?</b> \(the first (\d+) are shown", html)
+        assert shown_and_left and int(shown_and_left.group(2)) == 2 and int(shown_and_left.group(1)) > 0
+        assert "too many to draw" in html and "per-unit plots are left out" in html
+        assert '<svg class="strip"' not in html

@@ -32,6 +32,10 @@ STATUS_MARKS: Final = {
     "missing": "✗",
 }
 REPORT_FILES: Final = ("report.json", "report.html", "tidy.csv", "fixes-proposed.csv")
+# report.html stays readable for the largest programmes: beyond these it summarises (report.json has everything)
+MAX_FINDINGS_SHOWN: Final = 1000
+MAX_MAP_UNITS: Final = 2500
+MAX_PLOT_UNITS: Final = 400
 
 
 def luminance(colour: str) -> float:
@@ -74,6 +78,8 @@ def _unit_status(result: CheckResult) -> dict[tuple[str, str], str]:
 
 def _strip_plots(plan: Plan, result: CheckResult, unblind: bool) -> list[dict[str, Any]]:
     """Per numeric response and round: dot positions for a small SVG of subsample values per unit."""
+    if len(plan.units) > MAX_PLOT_UNITS:
+        return []
     tidy = result.tidy[result.tidy["status"] != "unmatched"]
     blind = plan.spec.study.blind and not unblind
     if blind:
@@ -82,6 +88,7 @@ def _strip_plots(plan: Plan, result: CheckResult, unblind: bool) -> list[dict[st
         rank = {t: i for i, t in enumerate(plan.spec.treatments)}
         order = [u.code for u in sorted(plan.units, key=lambda u: (rank[u.treatment], u.serial))]
     treatment_of = {u.code: u.treatment for u in plan.units}
+    position = {code: i for i, code in enumerate(order)}
     plots = []
     step, left, height, top = 14, 46, 150, 10
     for r in plan.spec.response:
@@ -100,7 +107,7 @@ def _strip_plots(plan: Plan, result: CheckResult, unblind: bool) -> list[dict[st
                 swapped = (unit, rnd.name) in result.swaps
                 dots.append(
                     {
-                        "x": left + order.index(unit) * step + step / 2,
+                        "x": left + position[unit] * step + step / 2,
                         "y": round(top + height - (float(value) - lo) / span * height, 1),
                         "cls": "out" if flagged else "swap" if swapped else "",
                         "title": f"{code}: {value:g}",
@@ -146,17 +153,32 @@ def _grouped(findings: list[Any]) -> list[tuple[Any, list[Any]]]:
     return out
 
 
+def _status_counts(status: dict[tuple[str, str], str], plan: Plan) -> dict[str, dict[str, int]]:
+    """Per round, how many units have each status: the map's summary for studies too large to draw."""
+    out: dict[str, dict[str, int]] = {r.name: dict.fromkeys(STATUS_COLOURS, 0) for r in plan.rounds}
+    for u in plan.units:
+        for r in plan.rounds:
+            out[r.name][status.get((u.code, r.name), "missing")] += 1
+    return out
+
+
 def report_html(plan: Plan, result: CheckResult, unblind: bool = False) -> str:
-    """The human report: summary, findings, completeness map and strip plots."""
-    cells, is_grid = map_cells(plan)
+    """The human report: summary, findings, completeness map and strip plots (summarised for large studies)."""
+    drawn = len(plan.units) <= MAX_MAP_UNITS
+    cells, is_grid = map_cells(plan) if drawn else ([], False)
     status = _unit_status(result)
+    findings = _grouped(result.findings)
     return (
         template_env()
         .get_template("report.html")
         .render(
             **page_context(plan),
             summary=result.summary,
-            findings=_grouped(result.findings),
+            findings=findings[:MAX_FINDINGS_SHOWN],
+            findings_left=len(result.findings) - sum(1 + len(f) for _, f in findings[:MAX_FINDINGS_SHOWN]),
+            drawn=drawn,
+            status_counts=None if drawn else _status_counts(status, plan),
+            plots_left_out=len(plan.units) > MAX_PLOT_UNITS,
             rounds=[r.name for r in plan.rounds],
             cells=cells,
             is_grid=is_grid,

@@ -10,6 +10,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 import zxingcpp
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from PIL import Image
 from pypdf import PdfReader
 
@@ -322,3 +324,40 @@ class TestColours:
             assert abs(_lab(a)[0] - _lab(b)[0]) >= 4.5, (a, b)
             for matrix in (None, *_CVD.values()):
                 assert np.linalg.norm(_lab(a, matrix) - _lab(b, matrix)) >= 15, (a, b, matrix)
+
+
+class TestBatchSymbols:
+    """layout.outputs.qrbatch against the qrcode library, the outside reference: the same modules,
+    mask included, for every code of every example and for random alphanumeric texts."""
+
+    def test_every_example_code_equals_the_library(self) -> None:
+        from layout import load_spec, make_plan
+        from layout.outputs.qr import qr_matrix
+        from layout.outputs.qrbatch import fits, symbols
+
+        codes = []
+        for spec in sorted((Path(__file__).parent.parent / "examples").glob("*.toml")):
+            plan = make_plan(load_spec(spec))
+            codes += [s.code for s in plan.slots] + [u.code for u in plan.units]
+        assert all(fits(c) for c in codes)
+        for code, got in zip(codes, symbols(codes), strict=True):
+            assert got.tolist() == [list(r) for r in qr_matrix(code)], code
+
+    @settings(max_examples=200, deadline=None)
+    @given(
+        st.lists(
+            st.text(alphabet="0123456789ABCDEFGHIJKLMNOPQRSTUVWXYZ $%*+-./:", max_size=20), min_size=1, max_size=20
+        )
+    )
+    def test_random_texts_equal_the_library(self, texts: list[str]) -> None:
+        from layout.outputs.qr import qr_matrix
+        from layout.outputs.qrbatch import symbols
+
+        for text, got in zip(texts, symbols(texts), strict=True):
+            assert got.tolist() == [list(r) for r in qr_matrix(text)], text
+
+    def test_longer_texts_fall_back_to_the_library(self) -> None:
+        from layout.outputs.qr import qr_svg, qr_svgs
+
+        long = "A-VERY-LONG-STUDY-ID-0001-1X"
+        assert qr_svgs([long], 20.0)[long] == qr_svg(long, 20.0)

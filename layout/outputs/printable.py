@@ -13,7 +13,7 @@ from markupsafe import Markup
 
 from layout.outputs.entry_table import EntryRow, Part, allowed_text, entry_rows
 from layout.outputs.labels import PAD_MM, LabelGeometry
-from layout.outputs.qr import qr_svg
+from layout.outputs.qr import qr_svgs
 from layout.plan import Plan, Unit
 from layout.render import page_context, template_env
 
@@ -155,12 +155,11 @@ def render_labels(plan: Plan, geometry: LabelGeometry, units: bool = False, tick
     d = plan.spec.design
     blind = plan.spec.study.blind
     items: list[dict[str, Any]] = []
+    svg = qr_svgs([u.code for u in plan.units] if units else [s.code for s in plan.slots], geometry.qr_size)
     if units:
         for u in plan.units:
             lines = [f"{d.unit_name} {u.serial}", position_text(u)] + ([] if blind else [u.treatment])
-            items.append(
-                {"code": u.code, "qr": Markup(qr_svg(u.code, geometry.qr_size)), "lines": [x for x in lines if x]}
-            )
+            items.append({"code": u.code, "qr": Markup(svg[u.code]), "lines": [x for x in lines if x]})
             if tick:
                 tick()
     else:
@@ -172,9 +171,7 @@ def render_labels(plan: Plan, geometry: LabelGeometry, units: bool = False, tick
                 of = len(plan.slots_of[u.code])
                 lines = [f"{d.subsample_name} {s.subsample} of {of}", f"{d.unit_name} {u.code}", position_text(u)]
                 lines = ([f"round {rnd}"] if rnd is not None else []) + lines + ([] if blind else [u.treatment])
-                items.append(
-                    {"code": s.code, "qr": Markup(qr_svg(s.code, geometry.qr_size)), "lines": [x for x in lines if x]}
-                )
+                items.append({"code": s.code, "qr": Markup(svg[s.code]), "lines": [x for x in lines if x]})
                 if tick:
                     tick()
     page_w, page_h = geometry.page_size

@@ -204,3 +204,19 @@ def test_text_that_looks_like_a_formula_stays_text(tmp_path: Path) -> None:
     assert formulas == []
     texts = {c.value for ws in wb.worksheets for row in ws.iter_rows() for c in row}
     assert {"=1+1", "+2", "-3", "@SUM(A1)", "=a", "+b"} <= texts
+
+
+def test_bulk_rows_as_text_equal_openpyxl_byte_for_byte(
+    rcbd_plan: Plan, blind_plan: Plan, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """The rows written as text (layout.outputs.sheetxml) make the very bytes openpyxl makes when it
+    writes every row itself, for whole workbooks and split ones."""
+    from layout.outputs import workbook
+    from layout.outputs.entry_table import parts
+
+    def every(plan: Plan) -> list[bytes]:
+        return [workbook_bytes(plan), *(workbook_bytes(plan, p) for p in parts(plan, "round"))]
+
+    fast = [every(rcbd_plan), every(blind_plan)]
+    monkeypatch.setattr(workbook, "writable", lambda rows: False)  # openpyxl writes every row
+    assert [every(rcbd_plan), every(blind_plan)] == fast

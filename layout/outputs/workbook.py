@@ -8,6 +8,7 @@ returned workbook can prove which plan it belongs to.
 
 from __future__ import annotations
 
+import html
 import io
 import re
 import zipfile
@@ -33,6 +34,7 @@ from layout.outputs.entry_table import (
     structure_columns,
     structure_values,
 )
+from layout.outputs.sheetxml import with_rows, writable
 from layout.plan import Plan
 from layout.spec import Response
 
@@ -43,6 +45,7 @@ _OPEN: Final = Protection(locked=False)
 _THIN: Final = Side(style="thin", color="9AA3AB")
 _BOX: Final = Border(left=_THIN, right=_THIN, top=_THIN, bottom=_THIN)
 LISTS_SHEET: Final = "lists"
+Pending = dict[str, tuple[int, list[list[object]]]]  # sheet title → (row openpyxl wrote last, rows to add)
 _WIDTHS: Final = {"code": 15, "unit": 13, "block": 7, "row": 6, "col": 6, "subsample": 11, "round": 10, "treatment": 16}
 
 
@@ -146,7 +149,7 @@ def _lists_sheet(wb: Workbook, lists: dict[str, list[str]]) -> None:
         ws.append(_row(ws, [lists[n][i] if i < len(lists[n]) else None for n in names]))
 
 
-def _entry_sheet(wb: Workbook, plan: Plan, part: Part | None, lists: dict[str, str]) -> None:
+def _entry_sheet(wb: Workbook, plan: Plan, part: Part | None, lists: dict[str, str], pending: Pending) -> None:
     ws = wb.create_sheet("entry")
     head = headers(plan)
     rows = entry_rows(plan, part)
@@ -186,14 +189,14 @@ def _entry_sheet(wb: Workbook, plan: Plan, part: Part | None, lists: dict[str, s
     ws.print_area = f"A1:{last_col}{last}"
     ws.append(_row(ws, [_cell(ws, h, bold=True) for h in head]))
     inputs = len(plan.spec.response) + len(TRAILING)
-    for row in rows:
+    values = [structure_values(plan, row) + [None] * inputs for row in rows]
+    by_openpyxl = values if not writable(values) else values[:1]  # the rest go in as text (sheetxml)
+    for v in by_openpyxl:
         ws.append(
-            _row(
-                ws,
-                [_cell(ws, v) for v in structure_values(plan, row)]
-                + [_cell(ws, None, locked=False) for _ in range(inputs)],
-            )
+            _row(ws, [_cell(ws, x) for x in v[:n_struct]] + [_cell(ws, None, locked=False) for _ in range(inputs)])
         )
+    if len(by_openpyxl) < len(values):
+        pending[ws.title] = (2, values[1:])
 
 
 def _units_sheet(wb: Workbook, plan: Plan) -> None:
@@ -256,26 +259,47 @@ def _about_sheet(wb: Workbook, plan: Plan) -> None:
         ws.append(_row(ws, [k, v]))
 
 
-def _hidden_sheet(wb: Workbook, plan: Plan) -> None:
+def _hidden_sheet(wb: Workbook, plan: Plan, pending: Pending) -> None:
     ws = wb.create_sheet(HIDDEN_SHEET)
     ws.sheet_state = "veryHidden"
     ws.append(_row(ws, ["format", ENTRY_FORMAT]))
     ws.append(_row(ws, ["fingerprint", plan.fingerprint]))
     ws.append(_row(ws, ["study", plan.spec.study.id]))
     ws.append(_row(ws, ["slot", "unit", "subsample"]))
-    for s in plan.slots:
-        ws.append(_row(ws, [s.code, s.unit, s.subsample]))
+    values = [[s.code, s.unit, s.subsample] for s in plan.slots]
+    by_openpyxl = values if not writable(values) else values[:1]
+    for v in by_openpyxl:
+        ws.append(_row(ws, v))
+    if len(by_openpyxl) < len(values):
+        pending[ws.title] = (5, values[1:])
 
 
-def _stable_zip(data: bytes) -> bytes:
-    """The same archive with fixed entry times, so the same plan gives the same bytes."""
+def _sheet_parts(src: zipfile.ZipFile) -> dict[str, str]:
+    """Sheet title → its part in the archive, from xl/workbook.xml and its relationships."""
+    rels = dict(re.findall(rb'Id="([^"]+)"[^>]*Target="([^"]+)"', src.read("xl/_rels/workbook.xml.rels")))
+    rels |= {k: v for v, k in re.findall(rb'Target="([^"]+)"[^>]*Id="([^"]+)"', src.read("xl/_rels/workbook.xml.rels"))}
+    out = {}
+    for name, rid in re.findall(rb'<sheet name="([^"]+)"[^>]*r:id="([^"]+)"', src.read("xl/workbook.xml")):
+        target = rels[rid].decode().lstrip("/")
+        out[html.unescape(name.decode())] = target if target.startswith("xl/") else "xl/" + target
+    return out
+
+
+def _stable_zip(data: bytes, pending: Pending | None = None) -> bytes:
+    """The same archive with fixed entry times, so the same plan gives the same bytes; the pending
+    rows of each sheet written in (layout.outputs.sheetxml)."""
     out = io.BytesIO()
     with zipfile.ZipFile(io.BytesIO(data)) as src, zipfile.ZipFile(out, "w", zipfile.ZIP_DEFLATED) as dst:
+        parts = {v: k for k, v in _sheet_parts(src).items()} if pending else {}
         for info in src.infolist():
             fixed = zipfile.ZipInfo(info.filename, date_time=(1980, 1, 1, 0, 0, 0))
             fixed.compress_type = zipfile.ZIP_DEFLATED
             fixed.external_attr = 0o600 << 16
             data = src.read(info.filename)
+            title = parts.get(info.filename)
+            if pending and title in pending:
+                sample_row, rows = pending[title]
+                data = with_rows(data, rows, sample_row)
             if info.filename == "docProps/core.xml":  # openpyxl stamps the save time here
                 data = re.sub(rb"(<dcterms:modified[^>]*>)[^<]*", rb"\g<1>2000-01-01T00:00:00Z", data)
             dst.writestr(fixed, data)
@@ -290,11 +314,12 @@ def workbook_bytes(plan: Plan, part: Part | None = None) -> bytes:
     wb.properties.created = _FIXED_TIME
     wb.properties.modified = _FIXED_TIME
     lists = _lists(plan)
-    _entry_sheet(wb, plan, part, _list_ranges(lists))
+    pending: Pending = {}
+    _entry_sheet(wb, plan, part, _list_ranges(lists), pending)
     _units_sheet(wb, plan)
     _about_sheet(wb, plan)
     _lists_sheet(wb, lists)
-    _hidden_sheet(wb, plan)
+    _hidden_sheet(wb, plan, pending)
     buf = io.BytesIO()
     wb.save(buf)
-    return _stable_zip(buf.getvalue())
+    return _stable_zip(buf.getvalue(), pending)

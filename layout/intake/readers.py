@@ -114,7 +114,7 @@ def _read_book(p: Path, formulas: bool) -> ReturnedTable:
         rows = book.get_sheet_by_name(name).to_python(skip_empty_area=False)
         fingerprint = study = None
         if HIDDEN_SHEET in names:
-            for row in book.get_sheet_by_name(HIDDEN_SHEET).to_python(skip_empty_area=False)[:5]:
+            for row in book.get_sheet_by_name(HIDDEN_SHEET).to_python(skip_empty_area=False, nrows=5):
                 if len(row) >= 2 and row[0] == "fingerprint":
                     fingerprint = str(row[1])
                 if len(row) >= 2 and row[0] == "study":

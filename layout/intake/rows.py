@@ -68,11 +68,20 @@ class PlanIndex:
 
 
 def _text(cell: Any) -> str:
+    t = type(cell)  # the common types first: this runs for every cell of every row
+    if t is str:
+        return cell.strip()
+    if cell is None:
+        return ""
+    if t is float and cell.is_integer():
+        return str(int(cell))
     return "" if is_blank(cell) else show_value(cell).strip()
 
 
 def _same(column: str, cell: Any, planned: Any) -> bool:
     """Whether a structure cell agrees with the plan; a cleared cell is harmless (the code says where the row belongs)."""
+    if (type(cell) is float or type(cell) is int) and type(planned) is int:
+        return cell == planned
     if is_blank(cell):
         return True
     if planned is None:

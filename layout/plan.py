@@ -276,6 +276,7 @@ def parse_plan(text: str, file: str = "plan.json") -> Plan:
             f"made with random stream {plan.rng.get('name')!r} version {plan.rng.get('version')!r}, "
             "which this version of layout does not know",
         )
+    plan.__dict__["fingerprint"] = recomputed  # checked against the file above; no need to serialise it again
     return plan
 
 

@@ -49,13 +49,24 @@ def analyze(plan: Plan, tidy: pd.DataFrame, accepted: list[str] | None = None) -
 
 
 def _values(plan: Plan, name: str, part: pd.DataFrame) -> tuple[list[Unit], list[np.ndarray]]:
-    vals = pd.to_numeric(part[name], errors="coerce")
-    by: dict[str, list[float]] = {}
-    for unit, v in zip(part["unit"].astype(str), vals, strict=True):
-        if not pd.isna(v):
-            by.setdefault(unit, []).append(float(v))
+    vals = pd.to_numeric(part[name], errors="coerce").to_numpy(dtype=float)
+    keep = ~np.isnan(vals)
+    if not keep.any():
+        return [], []
+    units_of = part["unit"].astype(str).to_numpy()[keep]
+    order = np.argsort(units_of, kind="stable")  # grouped by unit, rows in file order within each
+    sorted_units, starts = np.unique(units_of[order], return_index=True)
+    groups = np.split(vals[keep][order], starts[1:])
+    by = dict(zip(sorted_units.tolist(), groups, strict=True))
     units = [u for u in plan.units if u.code in by]
-    return units, [np.array(by[u.code]) for u in units]
+    return units, [by[u.code] for u in units]
+
+
+def unit_means_of(values: list[np.ndarray]) -> np.ndarray:
+    """The mean of each unit's values, in one pass over them all."""
+    lengths = np.array([len(v) for v in values])
+    starts = np.concatenate([[0], np.cumsum(lengths)[:-1]])
+    return np.add.reduceat(np.concatenate(values), starts) / lengths
 
 
 def _numeric(plan: Plan, name: str, rnd: str, part: pd.DataFrame, integer: bool) -> dict[str, Any]:
@@ -128,7 +139,7 @@ def _unit_means_table(plan: Plan, units: list[Unit], values: list[np.ndarray]) -
     """The design's ANOVA on one mean per unit (no sampling error row)."""
     from layout.stats.anova import Row, _tests
 
-    means = np.array([float(np.mean(v)) for v in values])
+    means = unit_means_of(values)
     split = plan.spec.design.type == "split-plot"
     table = Table(subsamples=1, units=len(units))
     for term, df, ss in unit_table(plan, units, means, 1.0):
@@ -162,7 +173,7 @@ def _combos(plan: Plan) -> list[tuple[str, ...]]:
 
 def _means(plan: Plan, table: Table, units: list[Unit], values: list[np.ndarray]) -> dict[str, Any]:
     """Means of every treatment factor (and of the treatments) with SE from their error term and Tukey's HSD."""
-    unit_means = {u.code: float(np.mean(v)) for u, v in zip(units, values, strict=True)}
+    unit_means = dict(zip((u.code for u in units), unit_means_of(values).tolist(), strict=True))
     names = factor_names(plan)
     split = plan.spec.design.type == "split-plot"
     out: dict[str, Any] = {"means": {}}

@@ -114,12 +114,12 @@ def _is_whole(plan: Plan, part: str) -> bool:
 def anova(plan: Plan, units: list[Unit], values: list[np.ndarray]) -> Table:
     """The ANOVA with subsampling of balanced data: values[i] are the subsample values of units[i]."""
     s = len(values[0])
-    means = np.array([float(np.mean(v)) for v in values])
-    centre = float(np.median(np.concatenate(values)))
-    sampling_ss = float(sum(np.sum((np.asarray(v) - np.mean(v)) ** 2) for v in values))
-    sampling_df = sum(len(v) - 1 for v in values)
-    total_ss = float(sum(np.sum((np.asarray(v) - centre) ** 2) for v in values))
-    total_ss -= len(np.concatenate(values)) * (float(np.mean(np.concatenate(values))) - centre) ** 2
+    grid = np.array(values, dtype=float)  # units x subsamples: the data are balanced
+    means = grid.mean(axis=1)
+    centre = float(np.median(grid))  # sums of squares about the median first, for their precision
+    sampling_ss = float(((grid - means[:, None]) ** 2).sum())
+    sampling_df = grid.size - len(values)
+    total_ss = float(((grid - centre) ** 2).sum()) - grid.size * (float(grid.mean()) - centre) ** 2
     parts = unit_table(plan, units, means, float(s))
     split = plan.spec.design.type == "split-plot"
     whole_plots = {u.whole_plot for u in units} if split else set()

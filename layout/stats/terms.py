@@ -71,8 +71,9 @@ def columns(term: Term, units: list[Unit]) -> np.ndarray:
     """Indicator contrasts of a term (reference coding; interactions as products)."""
     blocks = []
     for part in term.parts:
-        levels = sorted({level_of(u, part) for u in units})
-        blocks.append(np.column_stack([[level_of(u, part) == lv for u in units] for lv in levels[1:]]).astype(float))
+        of = np.array([level_of(u, part) for u in units])
+        levels = sorted(set(of.tolist()))
+        blocks.append((of[:, None] == np.array(levels[1:])[None, :]).astype(float))
     out = blocks[0]
     for b in blocks[1:]:
         out = np.column_stack([out[:, i] * b[:, j] for i in range(out.shape[1]) for j in range(b.shape[1])])

@@ -95,9 +95,10 @@ def _replaced(path: Path, force: bool) -> Plan | None:
 
 def _plan(args: argparse.Namespace) -> int:
     spec = load_spec(args.spec)
-    old = _replaced(Path(args.output), args.force)
-    plan = make_plan(spec, seed=args.seed, replacing=old)
-    path = plan.save(args.output, force=args.force)
+    with err.status("randomizing and writing the plan"):  # a second or two at 100,000 slots
+        old = _replaced(Path(args.output), args.force)
+        plan = make_plan(spec, seed=args.seed, replacing=old)
+        path = plan.save(args.output, force=args.force)
     if args.seed is None and spec.study.seed is None:
         out.print(f"No seed was given; drew {plan.seed} and recorded it in the plan.", style="bold")
     if old is not None and plan.replaces is not None:

@@ -13,6 +13,7 @@ from rich.table import Table
 from layout.errors import LayoutError, Problem, UsageError
 from layout.plan import load_plan
 
+err = Console(stderr=True, highlight=False, markup=False)
 out = Console()
 
 _EPILOG_ANALYZE = """example:
@@ -33,11 +34,14 @@ def _analyze(args: argparse.Namespace) -> int:
     from layout.stats.data import load_checked
     from layout.stats.output import write_analysis
 
-    plan = load_plan(args.plan)
-    checked = load_checked(plan, args.checked, accept_errors=args.accept_errors)
-    result = analyze(plan, checked.tidy, checked.accepted)
-    folder = Path(args.output) if args.output else checked.folder
-    written = write_analysis(plan, result, folder, force=args.force)
+    with err.status("analysing") as status:
+        plan = load_plan(args.plan)
+        checked = load_checked(plan, args.checked, accept_errors=args.accept_errors)
+        status.update("fitting the design's ANOVA")
+        result = analyze(plan, checked.tidy, checked.accepted)
+        folder = Path(args.output) if args.output else checked.folder
+        status.update("writing analysis.json and analysis.html")
+        written = write_analysis(plan, result, folder, force=args.force)
     for why in checked.accepted:
         out.print(f"Analysed although {why}.", style="bold red")
     print_analysis(result)

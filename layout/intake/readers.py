@@ -87,7 +87,7 @@ def _table(file: str, rows: list[list[Any]], **extra: Any) -> ReturnedTable:
     width = max(len(r) for r in rows[at:])
     # cells beyond the header row still count: they become added columns, so nothing typed is lost
     headers = ["" if c is None else str(c) for c in rows[at]] + [""] * (width - len(rows[at]))
-    body = [(at + 2 + i, list(r)) for i, r in enumerate(rows[at + 1 :])]
+    body = [(at + 2 + i, r) for i, r in enumerate(rows[at + 1 :])]  # rows are lists already; never changed here
     return ReturnedTable(file, headers, at + 1, body, **extra)
 
 
@@ -127,7 +127,13 @@ def _read_book(p: Path, formulas: bool) -> ReturnedTable:
         if isinstance(exc, (KeyboardInterrupt, SystemExit, GeneratorExit)):
             raise
         raise _unreadable(p, f"cannot be read as a workbook: a cell holds a value out of any range ({exc})") from None
-    table = _table(str(p), [list(r) for r in rows], fingerprint=fingerprint, study=study, sheet=name)
+    table = _table(
+        str(p),
+        rows if isinstance(rows, list) else [list(r) for r in rows],
+        fingerprint=fingerprint,
+        study=study,
+        sheet=name,
+    )  # calamine gives lists already
     if formulas:
         try:
             table.formulas = _formula_cells(p, name)

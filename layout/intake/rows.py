@@ -58,6 +58,8 @@ class PlanIndex:
         self.units = index_codes(u.code for u in plan.units)
         self.rounds = {r.name.lower(): r.name for r in plan.rounds}
         self.by_unit_sub = {(s.unit, s.subsample): s for s in plan.slots}
+        self.responses = {r.name: r for r in plan.spec.response}
+        self.reasons = {m.lower(): m for m in plan.spec.collection.missing_reasons}
         self.study = plan.spec.study.id
         width = serial_width(len(plan.units))
         self.lengths = (width + subsample_width(plan.spec.design.most_subsamples), width)
@@ -87,7 +89,7 @@ def _same(column: str, cell: Any, planned: Any) -> bool:
     if planned is None:
         return False
     if column == "unit":
-        return compact(str(cell)) == compact(str(planned))
+        return cell == planned or compact(str(cell)) == compact(str(planned))
     if isinstance(planned, int):
         try:
             return float(str(cell).strip().replace(",", ".")) == planned
@@ -111,7 +113,7 @@ def check_rows(
     found: list[Finding] = []
     width = len(table.headers)
     for number, raw_cells in table.rows:
-        cells = list(raw_cells) + [None] * (width - len(raw_cells))
+        cells = raw_cells if len(raw_cells) >= width else list(raw_cells) + [None] * (width - len(raw_cells))
         if all(is_blank(c) for c in cells):
             continue
         first = len(found)
@@ -142,7 +144,7 @@ def _place(
         hint = _code_from_place(cells, cols, idx)
         found.append(finding(Kind.BLANK_CODE, "the row has values but no code", column="code", suggestion=hint, **at))
         return "blank code"
-    slot_code = idx.slots.get(compact(code_text))
+    slot_code = code_text if code_text in idx.slot_by_code else idx.slots.get(compact(code_text))
     if slot_code is None:
         found.append(_code_finding(code_text, idx, at))
         return "code not in the plan"
@@ -236,9 +238,7 @@ def _read_values(
 
     Whether a blank needs a reason is judged after merging, when every file's rows of the slot are known.
     """
-    spec = idx.plan.spec
-    responses = {r.name: r for r in spec.response}
-    reasons = {m.lower(): m for m in spec.collection.missing_reasons}
+    responses, reasons = idx.responses, idx.reasons
     where = {"file": table.file, "row": entry.row, "code": entry.slot.code, "unit": entry.slot.unit}
     for name, i in cols.responses.items():
         r, cell = responses[name], cells[i]

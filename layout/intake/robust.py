@@ -47,6 +47,7 @@ subsample errors; unit means with experimental-error SD 1):
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Final
@@ -148,12 +149,10 @@ def find_outliers(values: dict[str, list[tuple[str, float]]], threshold: float) 
         if s < 3:
             continue
         total = sum(v for _, v in vs)
-        best: Outlier | None = None
-        for slot, v in vs:
-            others = (total - v) / (s - 1)
-            score = abs(v - others) / (scale * np.sqrt(1 + 1 / (s - 1)))
-            if best is None or score > best.score:
-                best = Outlier(slot, unit, v, others, float(score))
+        spread = scale * math.sqrt(1 + 1 / (s - 1))  # plain floats: numpy scalars cost a microsecond a value
+        slot, v = max(vs, key=lambda sv: abs(sv[1] - (total - sv[1]) / (s - 1)))  # the first of equal scores
+        others = (total - v) / (s - 1)
+        best: Outlier | None = Outlier(slot, unit, v, others, abs(v - others) / spread)
         if best is not None and best.score > threshold:
             found.append(best)
     return found

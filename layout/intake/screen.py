@@ -37,7 +37,7 @@ class Screened:
 
 def screen(plan: Plan, groups: Groups) -> Screened:
     """Outlying subsamples and possibly swapped units over every round and response, controlled per study."""
-    means_of = {key: {u: float(np.mean([v for _, v in vs])) for u, vs in g.items()} for key, g in groups.items()}
+    means_of = {key: {u: sum(v for _, v in vs) / len(vs) for u, vs in g.items()} for key, g in groups.items()}
     n_values = sum(outlier_candidates(g) for g in groups.values())
     n_pairs = sum(swap_candidates(plan, m) for m in means_of.values())
     out = Screened()

@@ -81,16 +81,31 @@ def _indented(value: Any, depth: int) -> str:
     return _inline(value)
 
 
+def _item_lines(items: list[Any]) -> list[str]:
+    """Each item of a simple list of objects as json writes it, from one call for the whole list.
+
+    Between two objects json writes '}, {"'; inside a string a quote is always escaped, so the
+    sequence marks item boundaries only. Should the count still differ (an object nested in a
+    list), each item is written on its own.
+    """
+    if not items:
+        return []
+    whole = json.dumps(items, ensure_ascii=False, separators=(", ", ": "))[1:-1]
+    pieces = whole.split('}, {"')
+    if len(pieces) != len(items) or not all(isinstance(i, dict) and i for i in items):
+        return [json.dumps(item, ensure_ascii=False, separators=(", ", ": ")) for item in items]
+    if len(pieces) == 1:
+        return pieces
+    return [pieces[0] + "}", *('{"' + p + "}" for p in pieces[1:-1]), '{"' + pieces[-1]]
+
+
 def readable_json(data: dict[str, Any], simple: frozenset[str] = frozenset()) -> str:
     """Indented JSON, one line per unit, slot and round so diffs stay readable; numbers as RFC 8785 writes them."""
     parts = []
     for key, value in data.items():
         if key in BIG_LISTS:
             fast = key in simple or _simple(value)
-            lines = (
-                json.dumps(item, ensure_ascii=False, separators=(", ", ": ")) if fast else _inline(item)
-                for item in value
-            )
+            lines = _item_lines(value) if fast else [_inline(item) for item in value]
             text = "[\n" + ",\n".join("  " + line for line in lines) + "\n ]"
         else:
             text = _indented(value, 1)

@@ -229,3 +229,22 @@ class TestFastJson:
         assert content["units"] == [asdict(u) for u in rcbd_plan.units]
         assert content["slots"] == [asdict(s) for s in rcbd_plan.slots]
         assert list(content["units"][0]) == list(asdict(rcbd_plan.units[0]))
+
+    @settings(max_examples=200, deadline=None)
+    @given(
+        st.lists(
+            st.dictionaries(
+                st.sampled_from(["code", "unit", "x"]),
+                st.one_of(st.text(), st.integers(0, 99), st.sampled_from(['}, {"', '"}, {"a": ', "\\\\", '\\\\"'])),
+                min_size=1,
+            ),
+            max_size=6,
+        )
+    )
+    def test_item_lines_equal_one_dump_per_item(self, items: list) -> None:
+        """The plan file's lines from one json call for a whole list equal one call per item."""
+        import json
+
+        from layout.jsontext import _item_lines
+
+        assert _item_lines(items) == [json.dumps(i, ensure_ascii=False, separators=(", ", ": ")) for i in items]

@@ -58,7 +58,7 @@ max = 500
 STEPS = {
     "plan": (
         "layout",
-        "from layout.cli import main\nt=time.perf_counter()\nmain(['plan', W+'/spec.toml', '-o', W+'/p.json', '--force'])\n"
+        "from layout.cli import main\nt=time.perf_counter()\nimport uuid\nmain(['plan', W+'/spec.toml', '-o', W+f'/p-{uuid.uuid4().hex}.json'])\n"
         "print(time.perf_counter()-t)",
     ),
     "workbook": (
@@ -143,7 +143,9 @@ def run_step(code: str, work: Path) -> tuple[float, float, int]:
 def setup(work: Path, replicates: int, tag: str, subsamples: int = 5) -> None:
     """spec.toml, plan.json, the filled workbook (simulated values) and its check's tidy.csv."""
     treatments = ", ".join(f'"t{i:02d}"' for i in range(20))
-    (work / "spec.toml").write_text(SPEC.format(tag=tag, reps=replicates, treatments=treatments, subs=subsamples), encoding="utf-8")
+    (work / "spec.toml").write_text(
+        SPEC.format(tag=tag, reps=replicates, treatments=treatments, subs=subsamples), encoding="utf-8"
+    )
     code = textwrap.dedent(
         """
         from layout import load_spec, make_plan
@@ -166,7 +168,9 @@ def setup_csv(work: Path, replicates: int, tag: str, subsamples: int = 10) -> No
     """spec.toml, plan.json and filled.csv: a re-typed return of every slot (codes and values only), written
     directly, since filling a workbook of 1,000,000 rows through openpyxl would take longer than the check."""
     treatments = ", ".join(f'"t{i:02d}"' for i in range(20))
-    (work / "spec.toml").write_text(SPEC.format(tag=tag, reps=replicates, treatments=treatments, subs=subsamples), encoding="utf-8")
+    (work / "spec.toml").write_text(
+        SPEC.format(tag=tag, reps=replicates, treatments=treatments, subs=subsamples), encoding="utf-8"
+    )
     code = textwrap.dedent(
         """
         import csv

@@ -58,8 +58,10 @@ def merge_entries(plan: Plan, entries: list[Entry]) -> tuple[dict[Key, Merged], 
     found: list[Finding] = []
     for e in entries:
         key = (e.slot.code, e.round)
-        m = merged.setdefault(key, Merged(e.slot, e.round))
-        m.seen |= set(e.raw)
+        m = merged.get(key)
+        if m is None:
+            m = merged[key] = Merged(e.slot, e.round)
+        m.seen.update(e.raw)
         if e.note and e.note not in m.notes:
             m.notes.append(e.note)
         for k, v in e.extras.items():

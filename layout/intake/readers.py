@@ -54,8 +54,7 @@ def read_returned(path: str | Path, limits: Limits = DEFAULT_LIMITS) -> Returned
         raise _unreadable(p, "no such file" if not p.exists() else "not a file")
     suffix = p.suffix.lower()
     if suffix in (".xlsx", ".xlsm"):
-        inspect_zip(p, limits)
-        return _read_xlsx(p)
+        return _read_book(p, formulas=inspect_zip(p, limits))  # the zip was scanned once, formulas noted
     if suffix == ".ods":
         inspect_zip(p, limits)
         table = _read_book(p, formulas=False)
@@ -89,18 +88,6 @@ def _table(file: str, rows: list[list[Any]], **extra: Any) -> ReturnedTable:
     headers = ["" if c is None else str(c) for c in rows[at]] + [""] * (width - len(rows[at]))
     body = [(at + 2 + i, r) for i, r in enumerate(rows[at + 1 :])]  # rows are lists already; never changed here
     return ReturnedTable(file, headers, at + 1, body, **extra)
-
-
-def _read_xlsx(p: Path) -> ReturnedTable:
-    try:
-        with zipfile.ZipFile(p) as z:
-            sheets_with_formulas = any(
-                n.startswith("xl/worksheets/") and (b"<f>" in (data := z.read(n)) or b"<f " in data)
-                for n in z.namelist()
-            )
-    except zipfile.BadZipFile:
-        raise _unreadable(p, "not a valid .xlsx workbook (the file is damaged or of another format)") from None
-    return _read_book(p, formulas=sheets_with_formulas)
 
 
 def _read_book(p: Path, formulas: bool) -> ReturnedTable:

@@ -91,8 +91,11 @@ def _is_encrypted(path: Path) -> bool:
     return "EncryptedPackage".encode("utf-16-le") in data
 
 
-def inspect_zip(path: Path, limits: Limits = DEFAULT_LIMITS) -> None:
-    """Refuse a workbook whose zip is damaged, too large, too compressed, or holds a DTD in any XML part."""
+def inspect_zip(path: Path, limits: Limits = DEFAULT_LIMITS) -> bool:
+    """Refuse a workbook whose zip is damaged, too large, too compressed, or holds a DTD in any XML part.
+
+    Returns whether any worksheet holds a formula (an <f> element), found in the same pass.
+    """
     kind = sniff(path)
     if kind != "zip":
         raise refuse_non_workbook(path, kind)
@@ -106,8 +109,10 @@ def inspect_zip(path: Path, limits: Limits = DEFAULT_LIMITS) -> None:
                 raise _refuse(
                     path, f"unpacks to {total // MB} MB, more than {limits.unpacked_total // MB} MB; refused as unsafe"
                 )
+            formulas = False
             for i in infos:
-                _check_part(path, z, i, limits)
+                formulas |= _check_part(path, z, i, limits)
+            return formulas
     except zipfile.BadZipFile:
         raise _refuse(
             path, "is a damaged workbook (cut short while copying or saving?); save or copy it again"
@@ -118,7 +123,7 @@ def inspect_zip(path: Path, limits: Limits = DEFAULT_LIMITS) -> None:
         raise _refuse(path, f"uses a zip feature no reader here supports ({exc}); save it again as .xlsx") from None
 
 
-def _check_part(path: Path, z: zipfile.ZipFile, info: zipfile.ZipInfo, limits: Limits) -> None:
+def _check_part(path: Path, z: zipfile.ZipFile, info: zipfile.ZipInfo, limits: Limits) -> bool:
     if info.file_size > limits.unpacked_part:
         raise _refuse(
             path,
@@ -132,7 +137,9 @@ def _check_part(path: Path, z: zipfile.ZipFile, info: zipfile.ZipInfo, limits: L
             f"more than {limits.ratio:g} to 1 (a zip bomb?); refused as unsafe",
         )
     if not info.filename.lower().endswith((".xml", ".rels", ".vml")):
-        return
+        return False
+    sheet = info.filename.startswith("xl/worksheets/")
+    formula = False
     seen = 0
     tail = b""
     with z.open(info) as fh:  # read in blocks, never more than the declared size
@@ -147,4 +154,6 @@ def _check_part(path: Path, z: zipfile.ZipFile, info: zipfile.ZipInfo, limits: L
                     f"part {info.filename} declares a document type (DTD); workbooks never need one and it can "
                     "hide entity attacks, so the file is refused; save it again from Excel or LibreOffice",
                 )
+            formula = formula or (sheet and (b"<f>" in window or b"<f " in window))
             tail = window[-_OVERLAP:]
+    return formula

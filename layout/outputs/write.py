@@ -131,12 +131,17 @@ def write_sheets(plan: Plan, out_dir: str | Path, options: SheetOptions | None =
     with bar.progress or _null():
         for product in options.only:
             if product == "entry":
-                for part in _parts(plan, options):
-                    put(f"entry{'-' + part.slug if part else ''}.xlsx", workbook_bytes(plan, part))
+                parts_ = _parts(plan, options)
+                with bar.task("entry workbook", len(parts_)) as tick:  # seconds at 100,000 slots
+                    for part in parts_:
+                        put(f"entry{'-' + part.slug if part else ''}.xlsx", workbook_bytes(plan, part))
+                        tick()
             elif product == "sheets":
                 for part in _parts(plan, options):
                     name = f"sheets{'-' + part.slug if part else ''}.html"
-                    html = render_sheets(plan, options.paper, part)
+                    with bar.task(f"collection sheets {name}", 1) as tick:
+                        html = render_sheets(plan, options.paper, part)
+                        tick()
                     put(name, html)
                     if options.pdf:
                         pdf_of(name, html)

@@ -248,3 +248,36 @@ class TestFastJson:
         from layout.jsontext import _item_lines
 
         assert _item_lines(items) == [json.dumps(i, ensure_ascii=False, separators=(", ", ": ")) for i in items]
+
+
+@pytest.mark.parametrize(
+    ("old", "new"),
+    [
+        ('"serial": 1,', '"serial": 1.0,'),  # a float where a whole number was
+        ('"serial": 1,', '"serial": 9007199254740993,'),  # beyond 2^53
+        ('"replicate": 1,', '"replicate": 1, "x\\ud83c\\udf31": 1,'),  # a key beyond the BMP, escaped
+        ('"replicate": 1,', '"replicate": 1, "x🌱": 1,'),  # the same key typed
+    ],
+)
+def test_edited_plan_fingerprint_is_the_rfc8785_one(old: str, new: str) -> None:
+    """Whatever an edited plan holds, the fingerprint it is checked against is the one rfc8785 (the
+    reference library) gives: the fast path of layout.jsontext is only taken where it writes the same."""
+    from layout.plan import _UNFINGERPRINTED, parse_plan
+
+    text = (Path(__file__).parent / "golden" / "field-irrigation-rcbd.plan.json").read_text(encoding="utf-8")
+    edited = text.replace(old, new, 1)
+    assert edited != text
+    data = json.loads(edited)
+    try:
+        expected = hashlib.sha256(
+            rfc8785.dumps({k: v for k, v in data.items() if k not in _UNFINGERPRINTED})
+        ).hexdigest()
+    except rfc8785.CanonicalizationError:
+        expected = None
+    if expected == data["fingerprint"]:  # RFC 8785 writes 1.0 as 1: the same plan, still accepted
+        assert parse_plan(edited, "edited.json").fingerprint == expected
+        return
+    with pytest.raises(PlanError) as caught:
+        parse_plan(edited, "edited.json")
+    message = str(caught.value)
+    assert (expected in message) if expected else "cannot be canonicalised" in message

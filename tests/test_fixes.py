@@ -267,3 +267,25 @@ def test_fixes_file_problems_one_message_each(study: dict, tmp_path: Path) -> No
     notes.write_text("fix,who\n1,me\n", encoding="utf-8")
     r = run("check", study["plan"], study["book"], "--fixes", notes, "-o", tmp_path / "c0")
     assert r.returncode == 2 and "not a fixes file" in r.stderr and "Traceback" not in r.stderr
+
+
+def test_a_bare_file_name_takes_the_file_it_was_proposed_for(study: dict, tmp_path: Path) -> None:
+    """Two people's files of the same name in two folders: a fix naming only 'retyped-ben.csv' goes to the
+    one whose SHA-256 it carries, and the other file's same row is left as it was."""
+    first = tmp_path / "a" / "retyped-ben.csv"
+    other = tmp_path / "b" / "retyped-ben.csv"
+    first.parent.mkdir()
+    other.parent.mkdir()
+    first.write_bytes(study["csv"].read_bytes())
+    other.write_bytes(study["csv"].read_bytes().replace(b"14.4", b"14.5"))
+    run("check", study["plan"], first, "-o", tmp_path / "c1")
+    recode = next(r for r in proposals(tmp_path / "c1") if r["action"] == "recode")
+    fixes = approve([{**recode, "file": "retyped-ben.csv"}], tmp_path / "fixes.csv")
+    from layout import load_plan
+
+    result = check_returns(load_plan(study["plan"]), [other, first], fixes=read_fixes(fixes))
+    assert [f for f in result.findings if f.kind.value == "bad-fix"] == []
+    assert [(a.fix.fix, a.was) for a in result.fixes] == [(recode["fix"], recode["code"])]
+    tidy = result.tidy
+    fixed = tidy[tidy["fix"].notna()]
+    assert list(fixed["source_file"]) == [str(first)]

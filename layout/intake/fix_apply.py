@@ -8,25 +8,17 @@ from __future__ import annotations
 
 from dataclasses import replace
 from pathlib import Path
-from typing import Any
 
 from layout.codes import compact
 from layout.intake.columns import Columns
 from layout.intake.findings import Finding
-from layout.intake.fixes import Applied, Fix, FixBook, same_file
+from layout.intake.fixes import Applied, Fix, FixBook
 from layout.intake.readers import ReturnedTable
 from layout.intake.rows import Entry
+from layout.intake.rows import _text as _text  # the same reading of a cell as the checks use
 from layout.intake.values import is_blank
 from layout.names import normal
 from layout.plan import Plan
-
-
-def _text(cell: Any) -> str:
-    if is_blank(cell):
-        return ""
-    if isinstance(cell, float) and cell.is_integer():
-        return str(int(cell))
-    return str(cell).strip()
 
 
 def _column(f: Fix, cols: Columns, plan: Plan) -> tuple[int | None, str]:
@@ -106,7 +98,7 @@ def apply_keep_this(entries: list[Entry], findings: list[Finding], fixes: list[F
     aside: set[tuple[str, int]] = set()
     settled: set[tuple[str, str]] = set()
     for f in fixes:
-        kept = next((e for e in entries if e.row == f.row and same_file(f.file, e.file)), None)
+        kept = next((e for e in entries if e.row == f.row and e.file == book.claimed.get(id(f))), None)
         if kept is None:
             book.reject(f, f"row {f.row} of {f.file} was not placed in the plan (fix its code first)")
             continue

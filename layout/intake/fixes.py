@@ -81,15 +81,26 @@ class FixBook:
     fixes: list[Fix] = field(default_factory=list)
     bad: list[Finding] = field(default_factory=list)
     applied: list[Applied] = field(default_factory=list)
+    claimed: dict[int, str] = field(default_factory=dict)  # id of a fix → the returned file it was matched to
 
     def for_file(self, name: str, digest: str | None) -> list[Fix]:
-        """The fixes aimed at one returned file; a stale one becomes a bad-fix finding here."""
-        mine = [f for f in self.fixes if same_file(f.file, name)]
+        """The fixes aimed at one returned file; a stale one becomes a bad-fix finding here.
+
+        A fix that names its file by a bare name claims the given file of that name whose content
+        it was proposed for, so two folders' "returns.csv" never take each other's fixes.
+        """
         good = []
-        for f in mine:
+        for f in self.fixes:
+            how = match(f.file, name)
+            if not how or id(f) in self.claimed:
+                continue
             if digest is not None and f.file_sha256 != digest:
+                if how == "name":
+                    continue  # perhaps another file of that name; aimed_nowhere says so if none is
+                self.claimed[id(f)] = name
                 self.reject(f, f"{name} has changed since this fix was proposed (its SHA-256 is now {digest[:12]}…)")
             else:
+                self.claimed[id(f)] = name
                 good.append(f)
         return good
 
@@ -115,23 +126,28 @@ class FixBook:
                 self.reject(f, why)
 
     def aimed_nowhere(self, names: list[str]) -> None:
-        """bad-fix for every fix whose file was not among the returned files."""
+        """bad-fix for every fix that no returned file took."""
         for f in self.fixes:
-            if not any(same_file(f.file, n) for n in names):
+            if id(f) in self.claimed:
+                continue
+            if any(match(f.file, n) for n in names):
+                self.reject(f, f"no returned file named {Path(f.file).name!r} has the content it was proposed for")
+            else:
                 self.reject(f, f"its file {f.file!r} is not among the returned files given")
 
 
-def same_file(fixed: str, given: str) -> bool:
-    """Whether a fix's file names a given file: as written, by its full path, or by name alone."""
+def match(fixed: str, given: str) -> str | None:
+    """How a fix's file names a given file: 'path' (as written or the same full path), 'name' (a bare file
+    name), or None."""
     if fixed == given:
-        return True
+        return "path"
     a, b = Path(fixed), Path(given)
     try:
         if a.resolve() == b.resolve():
-            return True
+            return "path"
     except OSError:
         pass
-    return a.name == b.name and len(a.parts) == 1
+    return "name" if a.name == b.name and len(a.parts) == 1 else None
 
 
 def _text(cell: Any) -> str:

@@ -216,7 +216,11 @@ def _check(args: argparse.Namespace) -> int:
     fixes = None
     if args.fixes:
         if not Path(args.fixes).is_file():
-            raise UsageError(f"{args.fixes}: no such fixes file")
+            raise UsageError(
+                f"{args.fixes}: no such fixes file"
+                if not Path(args.fixes).exists()
+                else f"{args.fixes}: not a file; name the fixes CSV"
+            )
         fixes = read_fixes(args.fixes)
     with err.status("checking") as status:
         result = check_returns(plan, args.returned, progress=lambda step: status.update(step), fixes=fixes)

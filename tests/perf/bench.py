@@ -140,12 +140,21 @@ def run_step(code: str, work: Path) -> tuple[float, float, int]:
     return float(out[-2]), time.perf_counter() - started, int(out[-1])
 
 
+def _write_spec(work: Path, replicates: int, tag: str, subsamples: int) -> None:
+    """spec.toml: a crd of 20 treatments with the given replicates and subsamples."""
+    treatments = ", ".join(f'"t{i:02d}"' for i in range(20))
+    text = SPEC.format(tag=tag, reps=replicates, treatments=treatments, subs=subsamples)
+    (work / "spec.toml").write_text(text, encoding="utf-8")
+
+
+def _run(work: Path, code: str) -> None:
+    """A setup snippet in a fresh process, with W set to the work folder."""
+    subprocess.run([sys.executable, "-c", f"W = {str(work)!r}\n{code}"], check=True, cwd=ROOT)
+
+
 def setup(work: Path, replicates: int, tag: str, subsamples: int = 5) -> None:
     """spec.toml, plan.json, the filled workbook (simulated values) and its check's tidy.csv."""
-    treatments = ", ".join(f'"t{i:02d}"' for i in range(20))
-    (work / "spec.toml").write_text(
-        SPEC.format(tag=tag, reps=replicates, treatments=treatments, subs=subsamples), encoding="utf-8"
-    )
+    _write_spec(work, replicates, tag, subsamples)
     code = textwrap.dedent(
         """
         from layout import load_spec, make_plan
@@ -161,16 +170,13 @@ def setup(work: Path, replicates: int, tag: str, subsamples: int = 5) -> None:
             main(['check', W + '/plan.json', W + '/filled.xlsx', '-o', W + '/checked', '--force'])
         """
     )
-    subprocess.run([sys.executable, "-c", f"W = {str(work)!r}\n{code}"], check=True, cwd=ROOT)
+    _run(work, code)
 
 
 def setup_csv(work: Path, replicates: int, tag: str, subsamples: int = 10) -> None:
     """spec.toml, plan.json and filled.csv: a re-typed return of every slot (codes and values only), written
     directly, since filling a workbook of 1,000,000 rows through openpyxl would take longer than the check."""
-    treatments = ", ".join(f'"t{i:02d}"' for i in range(20))
-    (work / "spec.toml").write_text(
-        SPEC.format(tag=tag, reps=replicates, treatments=treatments, subs=subsamples), encoding="utf-8"
-    )
+    _write_spec(work, replicates, tag, subsamples)
     code = textwrap.dedent(
         """
         import csv
@@ -186,7 +192,7 @@ def setup_csv(work: Path, replicates: int, tag: str, subsamples: int = 10) -> No
                 w.writerow([code, f.values.get('mass', ''), f.values.get('count', '')])
         """
     )
-    subprocess.run([sys.executable, "-c", f"W = {str(work)!r}\n{code}"], check=True, cwd=ROOT)
+    _run(work, code)
 
 
 def pdf_rates(work: Path, reps: int) -> dict[str, float]:

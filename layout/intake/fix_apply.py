@@ -14,8 +14,10 @@ from layout.intake.columns import Columns
 from layout.intake.findings import Finding
 from layout.intake.fixes import Applied, Fix, FixBook
 from layout.intake.readers import ReturnedTable
-from layout.intake.rows import Entry
-from layout.intake.rows import _text as _text  # the same reading of a cell as the checks use
+from layout.intake.rows import (
+    Entry,
+    cell_text,  # the same reading of a cell as the checks use
+)
 from layout.intake.values import is_blank
 from layout.names import normal
 from layout.plan import Plan
@@ -49,7 +51,7 @@ def apply_row_fixes(
         if cells is None or all(is_blank(c) for c in cells):
             book.reject(f, f"row {f.row} of {table.file} holds no entry")
             continue
-        here = _text(cells[code_at])
+        here = cell_text(cells[code_at])
         if f.code and compact(here) != compact(f.code):
             book.reject(f, f"row {f.row} of {table.file} holds code {here!r}, not {f.code!r}")
             continue
@@ -74,7 +76,7 @@ def apply_row_fixes(
                 book.reject(f, f"{table.file} has no response column {f.column!r}")
                 touched.discard((f.row, normal(target)))
                 continue
-            was = _text(cells[at]) or None
+            was = cell_text(cells[at]) or None
             if f.action == "set-value":
                 cells[at] = f.value
                 book.applied.append(Applied(f, f"{header} read as {f.value}", was, f.value))

@@ -187,17 +187,15 @@ def completeness(plan: Plan, merged: dict[Key, Merged]) -> list[Finding]:
     return found
 
 
-def status(m: Merged | None, plan: Plan) -> str:
-    """The tidy table's status of a slot-round."""
+def status(m: Merged | None, plan: Plan, required: list[str] | None = None) -> str:
+    """The tidy table's status of a slot-round; required, when given, names the required responses."""
     if m is None:
         return "missing"
     if m.conflict:
         return "conflict"
-    required_blank = [
-        r.name
-        for r in plan.spec.response
-        if r.required and r.name in m.seen and r.name not in m.values and r.name not in m.rejected
-    ]
+    if required is None:
+        required = [r.name for r in plan.spec.response if r.required]
+    required_blank = [n for n in required if n in m.seen and n not in m.values and n not in m.rejected]
     if m.errors or m.rejected or (required_blank and not m.reason):
         return "error"
     if required_blank or (m.reason and not m.values):

@@ -33,7 +33,8 @@ def foreign_file(table: ReturnedTable, cols: Columns, idx: PlanIndex) -> Finding
     codes = code_cells(table, cols)
     if len(codes) < FEWEST_CODES:
         return None
-    strangers = [c for c in codes if compact(c) not in idx.slots and compact(c) not in idx.units]
+    exact = idx.slot_by_code
+    strangers = [c for c in codes if c not in exact and compact(c) not in idx.slots and compact(c) not in idx.units]
     if len(strangers) < SHARE * len(codes):
         return None
     parts = [p for p in (idx.parse(c) for c in strangers) if p is not None]

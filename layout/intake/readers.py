@@ -101,7 +101,10 @@ def _read_book(p: Path, formulas: bool) -> ReturnedTable:
         rows = book.get_sheet_by_name(name).to_python(skip_empty_area=False)
         fingerprint = study = None
         if HIDDEN_SHEET in names:
-            for row in book.get_sheet_by_name(HIDDEN_SHEET).to_python(skip_empty_area=False, nrows=5):
+            head = sheet_head(p, HIDDEN_SHEET, 5)
+            if head is None:  # not as layout wrote it: calamine reads the whole sheet
+                head = book.get_sheet_by_name(HIDDEN_SHEET).to_python(skip_empty_area=False, nrows=5)
+            for row in head:
                 if len(row) >= 2 and row[0] == "fingerprint":
                     fingerprint = str(row[1])
                 if len(row) >= 2 and row[0] == "study":
@@ -127,6 +130,68 @@ def _read_book(p: Path, formulas: bool) -> ReturnedTable:
         except Exception:  # the values were read; only the formula warning is lost
             table.formulas = set()
     return table
+
+
+_MAIN: Final = "{http://schemas.openxmlformats.org/spreadsheetml/2006/main}"
+_RELATION: Final = "{http://schemas.openxmlformats.org/officeDocument/2006/relationships}id"
+
+
+def sheet_head(p: Path, sheet: str, nrows: int) -> list[list[Any]] | None:
+    """The cells of a sheet's first rows, read from its XML without parsing the rest of it.
+
+    The hidden plan sheet holds a row per slot but only its first rows are needed. Only what
+    layout writes is read this way (text inline, numbers); for anything else, shared strings of
+    a re-saved file among them, None is returned and calamine reads the sheet whole.
+    """
+    from defusedxml.ElementTree import fromstring, iterparse
+
+    try:
+        with zipfile.ZipFile(p) as z:
+            book = fromstring(z.read("xl/workbook.xml"))
+            rid = next((s.get(_RELATION) for s in book.iter(f"{_MAIN}sheet") if s.get("name") == sheet), None)
+            rels = fromstring(z.read("xl/_rels/workbook.xml.rels"))
+            target = next((r.get("Target") for r in rels if r.get("Id") == rid), None)
+            if not rid or not target:
+                return None
+            part = target.lstrip("/") if target.startswith("/") else f"xl/{target}"
+            rows: list[list[Any]] = []
+            with z.open(part) as fh:
+                for _, el in iterparse(fh, events=("end",)):
+                    if el.tag != f"{_MAIN}row":
+                        continue
+                    if int(el.get("r", "0")) != len(rows) + 1:
+                        return None
+                    cells = list(el.iter(f"{_MAIN}c"))
+                    if len(cells) > 26 or any(c.get("r", ref) != ref for c, ref in zip(cells, _refs(len(rows) + 1))):
+                        return None  # a gap between cells, or more than columns A-Z
+                    row = [_inline_cell(c) for c in cells]
+                    if any(c is _NOT_SIMPLE for c in row):
+                        return None
+                    rows.append(row)
+                    if len(rows) == nrows:
+                        break
+            return rows
+    except Exception:  # whatever is unusual: the whole read below says what is wrong, if anything
+        return None
+
+
+_NOT_SIMPLE: Final = object()
+
+
+def _refs(row: int) -> list[str]:
+    return [f"{chr(65 + i)}{row}" for i in range(26)]
+
+
+def _inline_cell(c: Any) -> Any:
+    kind = c.get("t", "n")
+    if kind == "inlineStr":
+        return "".join(t.text or "" for t in c.iter(f"{_MAIN}t"))
+    v = c.find(f"{_MAIN}v")
+    if kind == "str":
+        return "" if v is None else v.text or ""
+    if kind == "n" and v is not None and v.text:
+        return float(v.text)
+    return _NOT_SIMPLE  # shared strings, booleans, errors, dates, gaps
 
 
 def _formula_cells(p: Path, sheet: str) -> set[tuple[int, int]]:

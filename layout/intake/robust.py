@@ -161,14 +161,16 @@ def find_outliers(values: dict[str, list[tuple[str, float]]], threshold: float) 
 def _design_matrix(plan: Plan, units: list[Unit], treatments: list[str]) -> tuple[np.ndarray, int]:
     """Columns: intercept, treatment contrasts, then the design's blocking terms; and where treatments start."""
     cols = [np.ones(len(units))]
-    for t in treatments[1:]:
-        cols.append(np.array([u.treatment == t for u in units], dtype=float))
+    # one array of labels per term, compared with each level in numpy: a Python pass per level costs seconds
+    given = np.array([u.treatment for u in units], dtype=object)
+    cols += [(given == t).astype(float) for t in treatments[1:]]
     kind = plan.spec.design.type
     terms: list[str] = ["block"] if kind in ("rcbd", "split-plot") else ["row", "col"] if kind == "latin-square" else []
     for term in terms:
-        levels = sorted({getattr(u, term) for u in units})
-        for lv in levels[1:]:
-            cols.append(np.array([getattr(u, term) == lv for u in units], dtype=float))
+        values = [getattr(u, term) for u in units]
+        levels = sorted(set(values))
+        labels = np.array(values, dtype=object)
+        cols += [(labels == lv).astype(float) for lv in levels[1:]]
     return np.column_stack(cols), 1
 
 
@@ -219,6 +221,7 @@ class _Fit:
         self.beta = self.inv @ (x.T @ y)
         self.resid = y - x @ self.beta
         self.rss = float(self.resid @ self.resid)
+        self.tiny = 1e-12 * max(1.0, float(np.var(y)))  # a residual variance this small is none
 
     def without(self, i: int, j: int) -> tuple[np.ndarray, float] | None:
         """Coefficients and residual variance of the fit without units i and j, or None when not estimable."""
@@ -231,7 +234,7 @@ class _Fit:
         beta = self.beta - self.inv @ xs.T @ (m_inv @ es)
         df = len(self.y) - 2 - self.rank
         s2 = (self.rss - float(es @ m_inv @ es)) / df if df >= 2 else 0.0
-        if s2 <= 1e-12 * max(1.0, float(np.var(self.y))):
+        if s2 <= self.tiny:
             return None
         return beta, s2
 

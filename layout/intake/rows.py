@@ -69,7 +69,8 @@ class PlanIndex:
         return parse_code(text, self.study, self.lengths)
 
 
-def _text(cell: Any) -> str:
+def cell_text(cell: Any) -> str:
+    """A cell as the text a person typed: stripped, whole floats without '.0', blank as ''."""
     t = type(cell)  # the common types first: this runs for every cell of every row
     if t is str:
         return cell.strip()
@@ -101,18 +102,29 @@ def _same(column: str, cell: Any, planned: Any) -> bool:
 def _round_of(cells: list[Any], cols: Columns, idx: PlanIndex) -> str | None:
     if "round" not in cols.structure:
         return idx.plan.rounds[0].name if len(idx.plan.rounds) == 1 else None
-    return idx.rounds.get(_text(cells[cols.structure["round"]]).lower())
+    return idx.rounds.get(cell_text(cells[cols.structure["round"]]).lower())
 
 
 def check_rows(
-    table: ReturnedTable, cols: Columns, idx: PlanIndex
+    table: ReturnedTable, cols: Columns, idx: PlanIndex, quick: bool = True
 ) -> tuple[list[Entry], list[Unmatched], list[Finding]]:
-    """Entries for every placed row, the rows that could not be placed, and every finding."""
+    """Entries for every placed row, the rows that could not be placed, and every finding.
+
+    quick lets rows that need no finding through layout.intake.fastrows; the result is the same without it.
+    """
+    from layout.intake.fastrows import FastRows
+
     entries: list[Entry] = []
     unmatched: list[Unmatched] = []
     found: list[Finding] = []
     width = len(table.headers)
+    fast = FastRows(table, cols, idx).entry if quick and table.rows else None
     for number, raw_cells in table.rows:
+        if fast is not None:
+            entry = fast(number, raw_cells)
+            if entry is not None:
+                entries.append(entry)
+                continue
         cells = raw_cells if len(raw_cells) >= width else list(raw_cells) + [None] * (width - len(raw_cells))
         if all(is_blank(c) for c in cells):
             continue
@@ -120,11 +132,11 @@ def check_rows(
         placed = _place(cells, cols, idx, {"file": table.file, "row": number}, found)
         if isinstance(placed, str):
             shown = {
-                h or f"column {i + 1}": _text(c)
+                h or f"column {i + 1}": cell_text(c)
                 for i, (h, c) in enumerate(zip(table.headers, cells, strict=True))
                 if not is_blank(c)
             }
-            unmatched.append(Unmatched(_text(cells[cols.structure["code"]]), shown, table.file, number, placed))
+            unmatched.append(Unmatched(cell_text(cells[cols.structure["code"]]), shown, table.file, number, placed))
             continue
         slot, rnd = placed
         entry = Entry(slot, rnd, {}, None, None, {}, table.file, number)
@@ -139,7 +151,7 @@ def _place(
 ) -> tuple[Slot, str] | str:
     """The row's slot and round, or why it cannot be placed; findings for its code and structure cells."""
     plan = idx.plan
-    code_text = _text(cells[cols.structure["code"]])
+    code_text = cell_text(cells[cols.structure["code"]])
     if not code_text:
         hint = _code_from_place(cells, cols, idx)
         found.append(finding(Kind.BLANK_CODE, "the row has values but no code", column="code", suggestion=hint, **at))
@@ -165,15 +177,15 @@ def _place(
             found.append(
                 finding(
                     Kind.UNIT_MISMATCH,
-                    f"{name} is {_text(cells[i])!r} but the plan has {expected} for {slot.code}",
+                    f"{name} is {cell_text(cells[i])!r} but the plan has {expected} for {slot.code}",
                     column=name,
-                    value=_text(cells[i]),
+                    value=cell_text(cells[i]),
                     **where,
                 )
             )
     rnd = _round_of(cells, cols, idx)
     if rnd is None:
-        got = _text(cells[cols.structure["round"]]) if "round" in cols.structure else ""
+        got = cell_text(cells[cols.structure["round"]]) if "round" in cols.structure else ""
         near = close_to(got, [r.name for r in plan.rounds]) if got else None
         found.append(
             finding(
@@ -242,14 +254,14 @@ def _read_values(
     where = {"file": table.file, "row": entry.row, "code": entry.slot.code, "unit": entry.slot.unit}
     for name, i in cols.responses.items():
         r, cell = responses[name], cells[i]
-        entry.raw[name] = _text(cell)
+        entry.raw[name] = cell_text(cell)
         if (entry.row, i) in table.formulas:
             found.append(
                 finding(
                     Kind.FORMULA_CELL,
-                    f"{r.header} holds a formula; its last computed value {_text(cell)!r} was used",
+                    f"{r.header} holds a formula; its last computed value {cell_text(cell)!r} was used",
                     column=r.header,
-                    value=_text(cell),
+                    value=cell_text(cell),
                     **where,
                 )
             )
@@ -263,27 +275,27 @@ def _read_values(
                 found.append(
                     finding(
                         Kind.TOO_MANY_DECIMALS,
-                        f"{_text(cell)!r} has {extra} decimals; {r.header} is recorded to {r.decimals} "
+                        f"{cell_text(cell)!r} has {extra} decimals; {r.header} is recorded to {r.decimals} "
                         "(a unit or reading mistake?)",
                         column=r.header,
-                        value=_text(cell),
+                        value=cell_text(cell),
                         **where,
                     )
                 )
         else:
-            entry.rejected[name] = _text(cell)
+            entry.rejected[name] = cell_text(cell)
             found.append(
                 finding(
                     p.problem,
-                    f"{_text(cell)!r} {p.message}",
+                    f"{cell_text(cell)!r} {p.message}",
                     column=r.header,
-                    value=_text(cell),
+                    value=cell_text(cell),
                     suggestion=p.suggestion,
                     **where,
                 )
             )
     if cols.reason is not None and not is_blank(cells[cols.reason]):
-        text = _text(cells[cols.reason])
+        text = cell_text(cells[cols.reason])
         entry.reason = reasons.get(text.lower(), text)
         if text.lower() not in reasons:
             near = close_to(text, list(reasons.values()))
@@ -299,17 +311,17 @@ def _read_values(
                 )
             )
     if cols.note is not None and not is_blank(cells[cols.note]):
-        entry.note = _text(cells[cols.note])
-    entry.extras = {name: _text(cells[i]) for name, i in cols.extras.items() if not is_blank(cells[i])}
+        entry.note = cell_text(cells[cols.note])
+    entry.extras = {name: cell_text(cells[i]) for name, i in cols.extras.items() if not is_blank(cells[i])}
 
 
 def _code_from_place(cells: list[Any], cols: Columns, idx: PlanIndex) -> str | None:
     """The slot code that the row's unit and subsample cells point to, if they do."""
     if "unit" not in cols.structure or "subsample" not in cols.structure:
         return None
-    unit = idx.units.get(compact(_text(cells[cols.structure["unit"]])))
+    unit = idx.units.get(compact(cell_text(cells[cols.structure["unit"]])))
     try:
-        sub = int(float(_text(cells[cols.structure["subsample"]])))
+        sub = int(float(cell_text(cells[cols.structure["subsample"]])))
     except ValueError:
         return None
     slot = idx.by_unit_sub.get((unit, sub)) if unit else None

@@ -224,13 +224,16 @@ def main() -> int:
     ap.add_argument("--big", action="store_true", help="also check 1,000,000 slots")
     ap.add_argument("--out", default="bench.json")
     ap.add_argument("--only", help="comma-separated steps (of the table, or pdf)")
+    ap.add_argument("--work", help="keep the set-up files in this folder and reuse them on the next run")
     args = ap.parse_args()
     console = Console()
     figures: dict = {"machine": platform.platform(), "python": platform.python_version(), "steps": {}}
     with tempfile.TemporaryDirectory(prefix="layout-bench-") as tmp:
-        work = Path(tmp)
-        console.print("setting up 100,000 slots (plan, workbook, simulated values, first check)...")
-        setup(work, 1000, "1")
+        work = Path(args.work or tmp)
+        work.mkdir(parents=True, exist_ok=True)
+        if not (work / "checked" / "tidy.csv").exists():
+            console.print("setting up 100,000 slots (plan, workbook, simulated values, first check)...")
+            setup(work, 1000, "1")
         steps = args.only.split(",") if args.only else list(STEPS)
         for name in (n for n in steps if n in STEPS):
             what, code = STEPS[name]
@@ -247,9 +250,10 @@ def main() -> int:
             figures["pdf_labels_per_second"] = pdf_rates(work, args.reps)
         if args.big:
             big = work / "big"
-            big.mkdir()
-            console.print("setting up 1,000,000 slots...")
-            setup_csv(big, 5000, "2", subsamples=10)  # 100,000 units (the spec's most) x 10 subsamples
+            big.mkdir(exist_ok=True)
+            if not (big / "filled.csv").exists():
+                console.print("setting up 1,000,000 slots...")
+                setup_csv(big, 5000, "2", subsamples=10)  # 100,000 units (the spec's most) x 10 subsamples
             runs = [run_step(STEPS["check"][1].replace("filled.xlsx", "filled.csv"), big)]
             figures["check_1m"] = {"what": "layout check of a 1,000,000-row CSV return", "seconds": runs[0][0],
                                    "peak_mib": runs[0][2] / 1024}  # fmt: skip

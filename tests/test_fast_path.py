@@ -1,0 +1,164 @@
+"""The quick path through clean rows (layout.intake.fastrows) gives exactly the per-row path's check.
+
+Every case is checked twice, once as the command does it and once with every row sent
+through the per-row code, and the two results must be equal in full: findings (every field,
+in order), tidy table, summary, outliers, swaps and proposed fixes. The cases are the
+hidden-row ones of the other check tests (sorted, mistyped, duplicated, conflicting and
+foreign rows, every planted fault, every file of tests/returns, the CSV dialects), and
+random cells put into otherwise clean rows.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import functools
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+import layout.intake.gather as gather_module
+from layout import Plan, load_spec, loads_spec, make_plan
+from layout.intake import fastrows, rows
+from layout.intake.check import CheckResult, check_returns
+from layout.intake.columns import map_columns
+from layout.intake.readers import ReturnedTable, read_returned
+from layout.intake.rows import PlanIndex, check_rows
+from layout.outputs.workbook import workbook_bytes
+from layout.simulate import fill_workbook
+from tests import test_check as tc
+
+RETURNS = Path(__file__).parent / "returns"
+
+
+def both(plan: Plan, paths: list[Path]) -> tuple[CheckResult, CheckResult]:
+    """The check as the command makes it, and the same check with the quick path turned off."""
+    quick = check_returns(plan, paths)
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(gather_module, "check_rows", functools.partial(rows.check_rows, quick=False))
+        slow = check_returns(plan, paths)
+    return quick, slow
+
+
+def assert_same(quick: CheckResult, slow: CheckResult) -> None:
+    assert quick.findings == slow.findings
+    pd.testing.assert_frame_equal(quick.tidy, slow.tidy)
+    assert quick.summary == slow.summary
+    assert (quick.outliers, quick.swaps) == (slow.outliers, slow.swaps)
+    assert quick.proposals == slow.proposals
+
+
+@pytest.fixture(scope="module")
+def plan() -> Plan:
+    return make_plan(loads_spec(tc.SPEC, "check.toml"))
+
+
+@pytest.fixture(scope="module")
+def filled(plan: Plan, tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """test_check's filled workbook: the published values of NIST StRD SmLs01 (see there)."""
+    folder = tmp_path_factory.mktemp("filled")
+    (folder / "entry.xlsx").write_bytes(workbook_bytes(plan))
+    return fill_workbook(plan, folder / "entry.xlsx", folder / "filled.xlsx", tc.published_fill(plan))
+
+
+def test_the_quick_path_takes_the_clean_rows(plan: Plan, filled: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    """On a clean return nearly every row goes the quick way (else the comparisons below prove little)."""
+    taken: list[bool] = []
+    original = fastrows.FastRows.entry
+
+    def counting(self: fastrows.FastRows, number: int, cells: list[Any]) -> Any:
+        entry = original(self, number, cells)
+        taken.append(entry is not None)
+        return entry
+
+    monkeypatch.setattr(fastrows.FastRows, "entry", counting)
+    check_returns(plan, [filled])
+    declared = sum(1 for f in tc.published_fill(plan).values() if f.reason)  # a reason sends a row the slow way
+    assert len(taken) == len(plan.slots) * len(plan.rounds)
+    assert sum(taken) == len(taken) - declared
+
+
+@pytest.mark.parametrize(("name", "make"), [(f[0], f[1]) for f in tc.FAULTS], ids=[f[0] for f in tc.FAULTS])
+def test_every_planted_fault(plan: Plan, filled: Path, tmp_path: Path, name: str, make: Any) -> None:
+    path = tc.edited(filled, tmp_path / f"{name}.xlsx", make(plan, tc.published_fill(plan)))
+    assert_same(*both(plan, [path]))
+
+
+@pytest.mark.parametrize("path", sorted(RETURNS.glob("*.csv")), ids=lambda p: p.stem)
+def test_every_returned_csv(path: Path) -> None:
+    assert_same(*both(make_plan(load_spec(RETURNS / "study.toml")), [path]))
+
+
+@pytest.mark.parametrize(("delimiter", "decimal_comma"), [(",", False), (";", True), ("\t", False)])
+def test_csv_dialects(plan: Plan, filled: Path, tmp_path: Path, delimiter: str, decimal_comma: bool) -> None:
+    assert_same(*both(plan, [tc.to_csv(filled, tmp_path / "r.csv", delimiter, decimal_comma)]))
+
+
+def test_sorted_lowercase_codes(plan: Plan, filled: Path, tmp_path: Path) -> None:
+    path = tc.to_csv(filled, tmp_path / "r.csv", transform=lambda c: c.lower().replace("-", ""), sort=True)
+    assert_same(*both(plan, [path]))
+
+
+def test_two_files_with_duplicates_and_conflicts(plan: Plan, filled: Path, tmp_path: Path) -> None:
+    """A workbook and a CSV copy with one value changed: every slot twice, one of them in conflict."""
+    values = tc.published_fill(plan)
+    changed = tc.edited(filled, tmp_path / "c.xlsx", tc._append_copy(tc._changed_value)(plan, values))
+    assert_same(*both(plan, [changed, tc.to_csv(filled, tmp_path / "copy.csv")]))
+
+
+def test_swapped_units(plan: Plan, filled: Path, tmp_path: Path) -> None:
+    path = tc.edited(filled, tmp_path / "swap.xlsx", tc._swap_units(plan, tc.published_fill(plan)))
+    assert_same(*both(plan, [path]))
+
+
+# cells a person or a spreadsheet program may leave in a row: every type calamine and csv give, and near misses
+ODD_CELLS = st.one_of(
+    st.none(),
+    st.sampled_from(["", " ", "r1", "R1", "r3", "pale", "Pale", "purple", "lost", "note", "0", "50", "1", "2"]),
+    st.sampled_from(["12", "12.5", "12.50", "12.55", "-0", "1,5", " 12", "1e3", "nan", "inf", "2026-05-01"]),
+    st.floats(allow_nan=True, allow_infinity=True),
+    st.sampled_from([0.0, -0.0, 1.0, 2.0, 12.5, 12.25, 1e-7, 59.9, 60.0, 60.1, 500.0, 1e16, 1e300]),
+    st.integers(-5, 600),
+    st.booleans(),
+    st.just(dt.datetime(2026, 5, 1)),
+    st.text(max_size=6),
+)
+
+
+@settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(data=st.data(), decimal_comma=st.booleans())
+def test_random_cells_in_clean_rows(plan: Plan, filled: Path, data: st.DataObject, decimal_comma: bool) -> None:
+    """Any cell put anywhere in a few clean rows: the same entries, unplaced rows and findings both ways."""
+    table = read_returned(filled)
+    body = [(n, list(cells)) for n, cells in table.rows[:6]]
+    for _ in range(data.draw(st.integers(1, 6))):
+        n = data.draw(st.integers(0, len(body) - 1))
+        column = data.draw(st.integers(0, len(table.headers) - 1))
+        codes = [plan.slots[0].code, plan.slots[1].code, plan.units[0].code]
+        body[n][1][column] = data.draw(st.one_of(ODD_CELLS, st.sampled_from(codes)))
+    odd = ReturnedTable(table.file, table.headers, table.header_row, body, decimal_comma=decimal_comma)
+    odd.formulas = {(body[0][0], 8)} if data.draw(st.booleans()) else set()
+    cols, _ = map_columns(odd, plan)
+    idx = PlanIndex(plan)
+    assert check_rows(odd, cols, idx, quick=True) == check_rows(odd, cols, idx, quick=False)
+
+
+def test_the_plan_sheet_head_is_read_as_calamine_reads_it(filled: Path, soffice: str, tmp_path: Path) -> None:
+    """The first rows of the hidden plan sheet, read from its XML alone, equal calamine's whole read
+    (python-calamine as the reference reader); a LibreOffice re-save (shared strings) is left to calamine."""
+    from python_calamine import CalamineWorkbook
+
+    from layout.intake.readers import sheet_head
+    from layout.meta import HIDDEN_SHEET
+    from tests.conftest import libreoffice_convert
+
+    whole = CalamineWorkbook.from_path(str(filled)).get_sheet_by_name(HIDDEN_SHEET).to_python(nrows=5)
+    head = sheet_head(filled, HIDDEN_SHEET, 5)
+    assert head is not None
+    assert [[c for c in row if c != ""] for row in head] == [[c for c in row if c != ""] for row in whole]
+    resaved = libreoffice_convert(soffice, filled, "xlsx", tmp_path / "resaved")
+    assert sheet_head(resaved, HIDDEN_SHEET, 5) is None
+    assert read_returned(resaved).fingerprint == read_returned(filled).fingerprint

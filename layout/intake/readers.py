@@ -162,7 +162,8 @@ def sheet_head(p: Path, sheet: str, nrows: int) -> list[list[Any]] | None:
                     if int(el.get("r", "0")) != len(rows) + 1:
                         return None
                     cells = list(el.iter(f"{_MAIN}c"))
-                    if len(cells) > 26 or any(c.get("r", ref) != ref for c, ref in zip(cells, _refs(len(rows) + 1))):
+                    refs = _refs(len(rows) + 1)[: len(cells)]
+                    if len(cells) > 26 or any(c.get("r", ref) != ref for c, ref in zip(cells, refs, strict=True)):
                         return None  # a gap between cells, or more than columns A-Z
                     row = [_inline_cell(c) for c in cells]
                     if any(c is _NOT_SIMPLE for c in row):

@@ -14,6 +14,8 @@ import json
 import secrets
 from dataclasses import dataclass
 from functools import cached_property
+from itertools import groupby
+from operator import attrgetter
 from pathlib import Path
 from typing import Any, Final
 
@@ -136,10 +138,10 @@ class Plan:
     @cached_property
     def slots_of(self) -> dict[str, tuple[Slot, ...]]:
         """Each unit's slots in subsample order, keyed by unit code."""
-        out: dict[str, list[Slot]] = {}
-        for s in self.slots:
-            out.setdefault(s.unit, []).append(s)
-        return {k: tuple(v) for k, v in out.items()}
+        out: dict[str, tuple[Slot, ...]] = {}
+        for unit, run in groupby(self.slots, key=attrgetter("unit")):  # a unit's slots are together in a plan
+            out[unit] = out.get(unit, ()) + tuple(run)
+        return out
 
     @property
     def subsamples_vary(self) -> bool:

@@ -19,7 +19,7 @@ from layout.plan import Plan, Unit
 from layout.stats.anova import Table, anova, unit_table
 from layout.stats.compare import means_and_pairs
 from layout.stats.components import components
-from layout.stats.terms import factor_names, level_of
+from layout.stats.terms import factor_names, level_of, levels_of
 
 UNIT_MEANS_NOTE = (
     "In balanced data the treatment F from the unit means equals the F of the full ANOVA "
@@ -31,11 +31,12 @@ def analyze(plan: Plan, tidy: pd.DataFrame, accepted: list[str] | None = None) -
     """analysis.json's content: one result per numeric (or category) response and round."""
     results = []
     planned = tidy[tidy["status"].fillna("") != "unmatched"]
+    parts = {rnd.name: planned[planned["round"].astype(str) == rnd.name] for rnd in plan.rounds}
     for r in plan.spec.response:
         if r.kind in ("text", "date"):
             continue
         for rnd in plan.rounds:
-            part = planned[(planned["round"].astype(str) == rnd.name)]
+            part = parts[rnd.name]
             if r.kind == "category":
                 results.append(_category(plan, r.name, rnd.name, part))
             else:
@@ -53,18 +54,20 @@ def _values(plan: Plan, name: str, part: pd.DataFrame) -> tuple[list[Unit], list
     keep = ~np.isnan(vals)
     if not keep.any():
         return [], []
-    units_of = part["unit"].astype(str).to_numpy()[keep]
-    order = np.argsort(units_of, kind="stable")  # grouped by unit, rows in file order within each
-    sorted_units, starts = np.unique(units_of[order], return_index=True)
-    groups = np.split(vals[keep][order], starts[1:])
-    by = dict(zip(sorted_units.tolist(), groups, strict=True))
-    units = [u for u in plan.units if u.code in by]
-    return units, [by[u.code] for u in units]
+    # each value's unit as its place in the plan (-1: not a planned unit), then grouped by a stable sort,
+    # so each unit's values stay in file order
+    place = pd.Index([u.code for u in plan.units]).get_indexer(part["unit"].astype(str).to_numpy()[keep])
+    planned = place >= 0
+    order = np.argsort(place[planned], kind="stable")
+    grouped, by_place = vals[keep][planned][order], place[planned][order]
+    present, starts, counts = np.unique(by_place, return_index=True, return_counts=True)
+    units = [plan.units[i] for i in present.tolist()]
+    return units, [grouped[a : a + n] for a, n in zip(starts.tolist(), counts.tolist(), strict=True)]
 
 
 def unit_means_of(values: list[np.ndarray]) -> np.ndarray:
     """The mean of each unit's values, in one pass over them all."""
-    lengths = np.array([len(v) for v in values])
+    lengths = np.fromiter(map(len, values), dtype=int, count=len(values))
     starts = np.concatenate([[0], np.cumsum(lengths)[:-1]])
     return np.add.reduceat(np.concatenate(values), starts) / lengths
 
@@ -79,10 +82,10 @@ def _numeric(plan: Plan, name: str, rnd: str, part: pd.DataFrame, integer: bool)
         out.update({"method": "none", "table": []})
         notes.append("too few units with values to analyse")
         return out
-    planned = {u.code: len(plan.slots_of[u.code]) for u in plan.units}
     complete = len(units) == len(plan.units)
-    full = complete and all(len(v) == planned[u.code] for u, v in zip(units, values, strict=True))
-    equal = len({len(v) for v in values}) == 1
+    lengths = np.fromiter(map(len, values), dtype=int, count=len(values))
+    full = complete and bool((lengths == [len(plan.slots_of[u.code]) for u in units]).all())
+    equal = bool((lengths == lengths[0]).all())
     if full and equal:
         table = anova(plan, units, values)
         out["method"] = "anova"
@@ -173,7 +176,7 @@ def _combos(plan: Plan) -> list[tuple[str, ...]]:
 
 def _means(plan: Plan, table: Table, units: list[Unit], values: list[np.ndarray]) -> dict[str, Any]:
     """Means of every treatment factor (and of the treatments) with SE from their error term and Tukey's HSD."""
-    unit_means = dict(zip((u.code for u in units), unit_means_of(values).tolist(), strict=True))
+    unit_means = unit_means_of(values)
     names = factor_names(plan)
     split = plan.spec.design.type == "split-plot"
     out: dict[str, Any] = {"means": {}}
@@ -182,10 +185,8 @@ def _means(plan: Plan, table: Table, units: list[Unit], values: list[np.ndarray]
         err = table.row(row.error if row and row.error else ("sub-plot error" if split else "experimental error"))
         if err is None or err.ms is None or err.df <= 0:
             continue
-        groups: dict[str, list[float]] = {}
-        for u in units:
-            key = u.treatment if source == "treatment" else level_of(u, source)
-            groups.setdefault(key, []).append(unit_means[u.code])
+        keys = np.array(levels_of(units, source))
+        groups = {str(k): unit_means[keys == k].tolist() for k in dict.fromkeys(keys.tolist())}  # units in order
         order = list(plan.spec.treatments) if source == "treatment" else _level_order(plan, source)
         groups = {k: groups[k] for k in sorted(groups, key=lambda k: order.index(k) if k in order else len(order))}
         per_mean = table.subsamples * min(len(g) for g in groups.values())
@@ -194,7 +195,7 @@ def _means(plan: Plan, table: Table, units: list[Unit], values: list[np.ndarray]
             # for the plot: each level's unit means and subsample values
             subs: dict[str, list[float]] = {}
             for u, v in zip(units, values, strict=True):
-                key = u.treatment if source == "treatment" else level_of(u, source)
+                key = level_of(u, source)
                 subs.setdefault(key, []).extend(float(x) for x in v)
             out["points"] = {"source": source, "units": groups, "subsamples": subs}
     return out

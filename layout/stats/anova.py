@@ -58,16 +58,17 @@ class Table:
 
 
 def _fit_rss(x: np.ndarray, y: np.ndarray) -> tuple[float, int]:
-    beta, *_ = np.linalg.lstsq(x, y, rcond=None)
+    # lstsq's rank has numpy.linalg.matrix_rank's default tolerance (largest singular value × max(M, N) × eps)
+    beta, _, rank, _ = np.linalg.lstsq(x, y, rcond=None)
     resid = y - x @ beta
-    return float(resid @ resid), int(np.linalg.matrix_rank(x))
+    return float(resid @ resid), int(rank)
 
 
 def unit_table(plan: Plan, units: list[Unit], means: np.ndarray, weight: float) -> list[tuple[Term | None, int, float]]:
     """(term, df, ss) for every design term on the unit means, then (None, df, ss) for what is left."""
     y = means - np.median(means)
     x = np.ones((len(units), 1))
-    rss, rank = _fit_rss(x, y)
+    rss, rank = float(((y - y.mean()) ** 2).sum()), 1  # the intercept alone: the fit is the mean
     out: list[tuple[Term | None, int, float]] = []
     for term in design_terms(plan):
         x = np.column_stack([x, columns(term, units)])

@@ -16,6 +16,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
+import numpy as np
 from scipy import stats
 
 
@@ -30,6 +31,23 @@ def power_of(
     lam = n * (difference**2 / 2) / (var_unit + var_sub / s)
     crit = stats.f.isf(alpha, df1, df2)
     return float(stats.ncf.sf(crit, df1, df2, lam))
+
+
+def _powers(
+    t: int, cells: list[tuple[int, int]], var_unit: float, var_sub: float, difference: float, alpha: float, design: str
+) -> list[float]:
+    """power_of for every (n, s) at once: the same scipy functions, called once on arrays."""
+    n = np.array([c[0] for c in cells], dtype=float)
+    s = np.array([c[1] for c in cells], dtype=float)
+    df1 = t - 1
+    df2 = t * (n - 1) if design == "crd" else (t - 1) * (n - 1)
+    ok = df2 > 0
+    lam = n * (difference**2 / 2) / (var_unit + var_sub / s)
+    out = np.full(len(cells), np.nan)
+    if ok.any():
+        crit = stats.f.isf(alpha, df1, df2[ok])
+        out[ok] = stats.ncf.sf(crit, df1, df2[ok], lam[ok])
+    return [float(p) for p in out]
 
 
 def optimal_subsamples(var_unit: float, var_sub: float, cost_unit: float, cost_sub: float) -> float | None:
@@ -53,12 +71,12 @@ def power_grid(
     design: str = "crd",
 ) -> dict[str, Any]:
     """The grid, the cheapest plan reaching the target power (or the fewest observations), and s*."""
+    cells = [(n, s) for n in units for s in subsamples]
+    powers = _powers(t, cells, var_unit, var_sub, difference, alpha, design)
     grid = []
-    for n in units:
-        for s in subsamples:
-            p = power_of(t, n, s, var_unit, var_sub, difference, alpha, design)
-            cost = t * n * (cost_unit + s * cost_sub) if cost_unit is not None and cost_sub is not None else None
-            grid.append({"units": n, "subsamples": s, "power": p, "cost": cost})
+    for (n, s), p in zip(cells, powers, strict=True):
+        cost = t * n * (cost_unit + s * cost_sub) if cost_unit is not None and cost_sub is not None else None
+        grid.append({"units": n, "subsamples": s, "power": p, "cost": cost})
     reaching = [g for g in grid if g["power"] >= target]
     key = (
         (lambda g: (g["cost"], g["units"] * g["subsamples"]))

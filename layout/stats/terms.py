@@ -10,8 +10,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from itertools import combinations
+from operator import attrgetter
 
 import numpy as np
+import pandas as pd
 
 from layout.plan import Plan, Unit
 
@@ -67,13 +69,22 @@ def level_of(unit: Unit, part: str) -> str:
     return unit.levels[part]
 
 
+def levels_of(units: list[Unit], part: str) -> list[str]:
+    """level_of for every unit, in one pass (the per-unit call costs milliseconds at 20,000 units)."""
+    if part in ("block", "row", "col", "whole_plot"):
+        return list(map(str, map(attrgetter(part), units)))
+    if part == "treatment":
+        return list(map(attrgetter("treatment"), units))
+    return [u.levels[part] for u in units]
+
+
 def columns(term: Term, units: list[Unit]) -> np.ndarray:
     """Indicator contrasts of a term (reference coding; interactions as products)."""
     blocks = []
     for part in term.parts:
-        of = np.array([level_of(u, part) for u in units])
-        levels = sorted(set(of.tolist()))
-        blocks.append((of[:, None] == np.array(levels[1:])[None, :]).astype(float))
+        # level numbers in sorted order of the text (as sorted() orders it); comparing numbers is far quicker
+        which, levels = pd.factorize(np.array(levels_of(units, part), dtype=object), sort=True)
+        blocks.append((which[:, None] == np.arange(1, len(levels))[None, :]).astype(float))
     out = blocks[0]
     for b in blocks[1:]:
         out = np.column_stack([out[:, i] * b[:, j] for i in range(out.shape[1]) for j in range(b.shape[1])])

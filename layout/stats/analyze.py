@@ -9,6 +9,8 @@ Category responses get a count table of unit-level summaries and a test of indep
 
 from __future__ import annotations
 
+from collections import Counter
+from operator import attrgetter
 from typing import Any
 
 import numpy as np
@@ -30,7 +32,10 @@ UNIT_MEANS_NOTE = (
 def analyze(plan: Plan, tidy: pd.DataFrame, accepted: list[str] | None = None) -> dict[str, Any]:
     """analysis.json's content: one result per numeric (or category) response and round."""
     results = []
+    wanted = [c for c in ("unit", "round", "status", *(r.name for r in plan.spec.response)) if c in tidy.columns]
+    tidy = tidy[wanted]  # only what is used: filtering every column of a large table costs more than the analysis
     planned = tidy[tidy["status"].fillna("") != "unmatched"]
+    counts = None
     parts = {rnd.name: planned[planned["round"].astype(str) == rnd.name] for rnd in plan.rounds}
     for r in plan.spec.response:
         if r.kind in ("text", "date"):
@@ -40,7 +45,8 @@ def analyze(plan: Plan, tidy: pd.DataFrame, accepted: list[str] | None = None) -
             if r.kind == "category":
                 results.append(_category(plan, r.name, rnd.name, part))
             else:
-                results.append(_numeric(plan, r.name, rnd.name, part, integer=r.kind == "integer"))
+                counts = _planned_counts(plan) if counts is None else counts
+                results.append(_numeric(plan, r.name, rnd.name, part, counts, integer=r.kind == "integer"))
     return {
         "format": "layout-analysis/1",
         "plan": plan.fingerprint,
@@ -65,6 +71,12 @@ def _values(plan: Plan, name: str, part: pd.DataFrame) -> tuple[list[Unit], list
     return units, [grouped[a : a + n] for a, n in zip(starts.tolist(), counts.tolist(), strict=True)]
 
 
+def _planned_counts(plan: Plan) -> np.ndarray:
+    """Slots per unit, in the plan's unit order (counted without a container per unit)."""
+    counts = Counter(map(attrgetter("unit"), plan.slots))
+    return np.array([counts[u.code] for u in plan.units])
+
+
 def unit_means_of(values: list[np.ndarray]) -> np.ndarray:
     """The mean of each unit's values, in one pass over them all."""
     lengths = np.fromiter(map(len, values), dtype=int, count=len(values))
@@ -72,7 +84,9 @@ def unit_means_of(values: list[np.ndarray]) -> np.ndarray:
     return np.add.reduceat(np.concatenate(values), starts) / lengths
 
 
-def _numeric(plan: Plan, name: str, rnd: str, part: pd.DataFrame, integer: bool) -> dict[str, Any]:
+def _numeric(
+    plan: Plan, name: str, rnd: str, part: pd.DataFrame, planned_counts: np.ndarray, integer: bool
+) -> dict[str, Any]:
     units, values = _values(plan, name, part)
     notes: list[str] = []
     if integer:
@@ -84,10 +98,12 @@ def _numeric(plan: Plan, name: str, rnd: str, part: pd.DataFrame, integer: bool)
         return out
     complete = len(units) == len(plan.units)
     lengths = np.fromiter(map(len, values), dtype=int, count=len(values))
-    full = complete and bool((lengths == [len(plan.slots_of[u.code]) for u in units]).all())
+    full = complete and bool((lengths == planned_counts).all())
     equal = bool((lengths == lengths[0]).all())
+    means = unit_means_of(values)
+    parts = unit_table(plan, units, means, 1.0)  # on the unit means, for the ANOVA (times s) and the unit-means F
     if full and equal:
-        table = anova(plan, units, values)
+        table = anova(plan, units, values, parts)
         out["method"] = "anova"
     else:
         if not complete:
@@ -104,12 +120,13 @@ def _numeric(plan: Plan, name: str, rnd: str, part: pd.DataFrame, integer: bool)
             )
         else:
             notes.append("units have unequal numbers of subsamples: analysed on the unit means")
-        table = _unit_means_table(plan, units, values)
+        table = _unit_means_table(plan, units, means, parts)
         out["method"] = "unit-means"
     out["table"] = [row.to_dict() for row in table.rows]
     out["components"] = components(table) if out["method"] == "anova" else {}
-    out.update(_means(plan, table, units, values))
-    out["unit_means_f"] = _unit_means_f(plan, units, values)
+    out.update(_means(plan, table, units, values, means))
+    unit_means = table if out["method"] == "unit-means" else _unit_means_table(plan, units, means, parts)
+    out["unit_means_f"] = _unit_means_f(plan, unit_means)
     if out["method"] == "anova":
         out["notes"].append(UNIT_MEANS_NOTE)
         out["power"] = _next_trial(plan, out)
@@ -138,14 +155,13 @@ def _next_trial(plan: Plan, out: dict[str, Any]) -> dict[str, Any] | None:
     return grid
 
 
-def _unit_means_table(plan: Plan, units: list[Unit], values: list[np.ndarray]) -> Table:
-    """The design's ANOVA on one mean per unit (no sampling error row)."""
+def _unit_means_table(plan: Plan, units: list[Unit], means: np.ndarray, parts: list[Any]) -> Table:
+    """The design's ANOVA on one mean per unit (no sampling error row); parts: unit_table of the means."""
     from layout.stats.anova import Row, _tests
 
-    means = unit_means_of(values)
     split = plan.spec.design.type == "split-plot"
     table = Table(subsamples=1, units=len(units))
-    for term, df, ss in unit_table(plan, units, means, 1.0):
+    for term, df, ss in parts:
         table.rows.append(Row(term.name if term else ("sub-plot error" if split else "experimental error"), df, ss))
     total = float(np.sum((means - means.mean()) ** 2))
     table.rows.append(Row("total", len(units) - 1, total))
@@ -161,8 +177,7 @@ def _unit_means_table(plan: Plan, units: list[Unit], values: list[np.ndarray]) -
     return table
 
 
-def _unit_means_f(plan: Plan, units: list[Unit], values: list[np.ndarray]) -> list[dict[str, Any]]:
-    table = _unit_means_table(plan, units, values)
+def _unit_means_f(plan: Plan, table: Table) -> list[dict[str, Any]]:
     names = set(factor_names(plan)) | {":".join(c) for c in _combos(plan)}
     return [{"source": r.source, "f": r.f, "p": r.p} for r in table.rows if r.source in names and r.f is not None]
 
@@ -174,9 +189,10 @@ def _combos(plan: Plan) -> list[tuple[str, ...]]:
     return [c for k in range(2, len(names) + 1) for c in combinations(names, k)]
 
 
-def _means(plan: Plan, table: Table, units: list[Unit], values: list[np.ndarray]) -> dict[str, Any]:
+def _means(
+    plan: Plan, table: Table, units: list[Unit], values: list[np.ndarray], unit_means: np.ndarray
+) -> dict[str, Any]:
     """Means of every treatment factor (and of the treatments) with SE from their error term and Tukey's HSD."""
-    unit_means = unit_means_of(values)
     names = factor_names(plan)
     split = plan.spec.design.type == "split-plot"
     out: dict[str, Any] = {"means": {}}
@@ -191,7 +207,7 @@ def _means(plan: Plan, table: Table, units: list[Unit], values: list[np.ndarray]
         groups = {k: groups[k] for k in sorted(groups, key=lambda k: order.index(k) if k in order else len(order))}
         per_mean = table.subsamples * min(len(g) for g in groups.values())
         out["means"][source] = {"error_term": err.source, **means_and_pairs(groups, err.ms, err.df, per_mean)}
-        if "points" not in out and sum(len(v) for v in values) <= 5000:
+        if "points" not in out and sum(map(len, values)) <= 5000:
             # for the plot: each level's unit means and subsample values
             subs: dict[str, list[float]] = {}
             for u, v in zip(units, values, strict=True):

@@ -112,8 +112,16 @@ def _is_whole(plan: Plan, part: str) -> bool:
     return any(f.whole_plot and f.name == part for f in plan.spec.factor)
 
 
-def anova(plan: Plan, units: list[Unit], values: list[np.ndarray]) -> Table:
-    """The ANOVA with subsampling of balanced data: values[i] are the subsample values of units[i]."""
+def anova(
+    plan: Plan,
+    units: list[Unit],
+    values: list[np.ndarray],
+    on_means: list[tuple[Term | None, int, float]] | None = None,
+) -> Table:
+    """The ANOVA with subsampling of balanced data: values[i] are the subsample values of units[i].
+
+    on_means, when given, is unit_table of the unit means at weight 1 (computed once by the caller).
+    """
     s = len(values[0])
     grid = np.array(values, dtype=float)  # units x subsamples: the data are balanced
     means = grid.mean(axis=1)
@@ -121,7 +129,10 @@ def anova(plan: Plan, units: list[Unit], values: list[np.ndarray]) -> Table:
     sampling_ss = float(((grid - means[:, None]) ** 2).sum())
     sampling_df = grid.size - len(values)
     total_ss = float(((grid - centre) ** 2).sum()) - grid.size * (float(grid.mean()) - centre) ** 2
-    parts = unit_table(plan, units, means, float(s))
+    if on_means is None:
+        parts = unit_table(plan, units, means, float(s))
+    else:
+        parts = [(term, df, s * ss) for term, df, ss in on_means]
     split = plan.spec.design.type == "split-plot"
     whole_plots = {u.whole_plot for u in units} if split else set()
     per_plot = len(units) // max(1, len(whole_plots)) if split else 1

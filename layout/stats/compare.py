@@ -10,7 +10,7 @@ from itertools import combinations
 from typing import Any
 
 import numpy as np
-from scipy import stats
+from scipy import special, stats
 
 LARGE_DF = 10_000
 
@@ -27,13 +27,15 @@ def means_and_pairs(
     k = len(means)
     pairs = []
     if k >= 2 and df_error > 0 and se > 0:
-        # From 10,000 error df on, the distribution at infinite df (one integral, not two; a hundred times
-        # faster): p moves by less than 3e-4 for up to 20 means (measured against scipy at df = 10,000).
-        df = np.inf if df_error >= LARGE_DF else df_error
-        q_crit = float(stats.studentized_range.ppf(1 - alpha, k, df))
+        # From 10,000 error df on, the distribution at infinite df (one integral, not two): p moves by less
+        # than 3e-4 for up to 20 means (measured against scipy at df = 10,000).
         both = list(combinations(means, 2))
         q = np.array([abs(means[a] - means[b]) / se for a, b in both])
-        p_values = stats.studentized_range.sf(q, k, df) if len(q) else []
+        if df_error >= LARGE_DF:
+            q_crit, p_values = range_ppf_inf(1 - alpha, k), range_sf_inf(q, k)
+        else:
+            q_crit = float(stats.studentized_range.ppf(1 - alpha, k, df_error))
+            p_values = stats.studentized_range.sf(q, k, df_error) if len(q) else []
         for (a, b), p in zip(both, p_values, strict=True):
             diff = means[a] - means[b]
             pairs.append({"a": a, "b": b, "difference": diff, "p": float(p), "significant": bool(p < alpha)})
@@ -46,3 +48,36 @@ def means_and_pairs(
         ],
         "tukey": {"alpha": alpha, "hsd": hsd, "pairs": pairs},
     }
+
+
+_Z = np.linspace(-10.0, 10.0, 801)  # beyond ±10 the standard normal holds less than 1e-23; 401 points already agree
+_PHI = np.exp(-_Z * _Z / 2) / np.sqrt(2 * np.pi)
+_CDF = special.ndtr(_Z)
+
+
+def range_cdf_inf(q: np.ndarray, k: int) -> np.ndarray:
+    """P(R ≤ q) for the range R of k standard normals (the studentized range at infinite df).
+
+    P = k ∫ φ(z) [Φ(z) − Φ(z − q)]^(k−1) dz, by the trapezoid rule on a fine grid, which for this
+    smooth, fast-vanishing integrand is exact to about 1e-12 (checked against scipy in the tests);
+    one array operation for all q, where scipy integrates each q on its own.
+    """
+    q = np.atleast_1d(np.asarray(q, dtype=float))
+    inner = _CDF[None, :] - special.ndtr(_Z[None, :] - q[:, None])
+    return np.clip(k * np.trapezoid(_PHI * inner ** (k - 1), _Z, axis=1), 0.0, 1.0)
+
+
+def range_sf_inf(q: np.ndarray, k: int) -> np.ndarray:
+    """P(R > q) at infinite df."""
+    return 1.0 - range_cdf_inf(q, k)
+
+
+def range_ppf_inf(p: float, k: int) -> float:
+    """The q with P(R ≤ q) = p at infinite df, by bisection (the cdf rises with q)."""
+    low, high = 0.0, 1.0
+    while range_cdf_inf(np.array([high]), k)[0] < p:
+        high *= 2
+    for _ in range(60):
+        mid = (low + high) / 2
+        low, high = (mid, high) if range_cdf_inf(np.array([mid]), k)[0] < p else (low, mid)
+    return (low + high) / 2

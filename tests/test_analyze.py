@@ -464,3 +464,22 @@ class TestBadInput:
         book.write_bytes(workbook_bytes(plan))
         assert main(["analyze", str(tmp_path / "plan.json"), str(book)]) == 2
         assert "is not a tidy table" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("k", [2, 3, 5, 10, 20, 40])
+def test_studentized_range_at_infinite_df_agrees_with_scipy(k: int) -> None:
+    """Our one-integral studentized range at infinite df (used from 10,000 error df on) against
+    scipy.stats.studentized_range, the reference library, at df = inf."""
+    from layout.stats.compare import range_ppf_inf, range_sf_inf
+
+    q = np.array([0.05, 0.5, 1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 8.0])
+    assert np.allclose(range_sf_inf(q, k), stats.studentized_range.sf(q, k, np.inf), rtol=0, atol=1e-12)
+    assert range_ppf_inf(0.95, k) == pytest.approx(stats.studentized_range.ppf(0.95, k, np.inf), abs=1e-9)
+
+
+def test_studentized_range_table_value() -> None:
+    """q(0.05; 3 means, infinite df) = 3.314, the last row of the usual tables of the studentized range
+    (the value is from memory of those tables)."""
+    from layout.stats.compare import range_ppf_inf
+
+    assert range_ppf_inf(0.95, 3) == pytest.approx(3.314, abs=5e-4)

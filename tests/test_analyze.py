@@ -483,3 +483,12 @@ def test_studentized_range_table_value() -> None:
     from layout.stats.compare import range_ppf_inf
 
     assert range_ppf_inf(0.95, 3) == pytest.approx(3.314, abs=5e-4)
+
+
+@pytest.mark.parametrize("design", ["crd", "rcbd"])
+def test_power_grid_equals_power_of_cell_by_cell(design: str) -> None:
+    """The grid, computed with one scipy call per function, holds exactly power_of of each cell (nan where no df)."""
+    grid = power_grid(4, 2.0, 3.0, 1.5, units=range(1, 6), subsamples=range(1, 4), design=design)["grid"]
+    for cell in grid:
+        want = power_of(4, cell["units"], cell["subsamples"], 2.0, 3.0, 1.5, 0.05, design)
+        assert cell["power"] == want or (np.isnan(want) and np.isnan(cell["power"]))

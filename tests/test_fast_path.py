@@ -1,4 +1,4 @@
-"""The quick path through clean rows (layout.intake.fastrows) gives exactly the per-row path's check.
+"""The quick paths (clean rows in layout.intake.fastrows, first rows in merge) give exactly the general check.
 
 Every case is checked twice, once as the command does it and once with every row sent
 through the per-row code, and the two results must be equal in full: findings (every field,
@@ -20,9 +20,10 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+import layout.intake.check as check_module
 import layout.intake.gather as gather_module
 from layout import Plan, load_spec, loads_spec, make_plan
-from layout.intake import fastrows, rows
+from layout.intake import fastrows, merge, rows
 from layout.intake.check import CheckResult, check_returns
 from layout.intake.columns import map_columns
 from layout.intake.readers import ReturnedTable, read_returned
@@ -39,6 +40,7 @@ def both(plan: Plan, paths: list[Path]) -> tuple[CheckResult, CheckResult]:
     quick = check_returns(plan, paths)
     with pytest.MonkeyPatch.context() as mp:
         mp.setattr(gather_module, "check_rows", functools.partial(rows.check_rows, quick=False))
+        mp.setattr(check_module, "merge_entries", functools.partial(merge.merge_entries, quick=False))
         slow = check_returns(plan, paths)
     return quick, slow
 
@@ -162,3 +164,74 @@ def test_the_plan_sheet_head_is_read_as_calamine_reads_it(filled: Path, soffice:
     resaved = libreoffice_convert(soffice, filled, "xlsx", tmp_path / "resaved")
     assert sheet_head(resaved, HIDDEN_SHEET, 5) is None
     assert read_returned(resaved).fingerprint == read_returned(filled).fingerprint
+
+
+def _unit_status_by_hand(tidy: pd.DataFrame) -> dict[tuple[str, str], str]:
+    """The unit map's status as first written, slot by slot in Python, to compare the pandas version with."""
+    order = ["ok", "declared-missing", "partial", "conflict", "error", "missing"]
+    status: dict[tuple[str, str], list[str]] = {}
+    for unit, rnd, s in zip(tidy["unit"], tidy["round"], tidy["status"], strict=True):
+        if s != "unmatched":
+            status.setdefault((unit, rnd), []).append(s)
+    out = {}
+    for key, values in status.items():
+        if "missing" in values and not all(v == "missing" for v in values):
+            values = [v if v != "missing" else "partial" for v in values]
+        out[key] = max(values, key=order.index)
+    return out
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.sampled_from(["ok", "declared-missing", "conflict", "error", "missing", "unmatched"]), min_size=1))
+def test_unit_status_in_pandas_equals_the_slot_by_slot_rule(statuses: list[str]) -> None:
+    from layout.intake.report import _unit_status
+
+    n = len(statuses)
+    tidy = pd.DataFrame(
+        {"unit": [f"U{i % 4}" for i in range(n)], "round": [f"r{i % 3 % 2}" for i in range(n)], "status": statuses}
+    )
+    result = CheckResult([], tidy, {})
+    assert _unit_status(result) == _unit_status_by_hand(tidy)
+
+
+def _outliers_by_hand(values: dict[str, list[tuple[str, float]]], threshold: float) -> list[Any]:
+    """find_outliers as first written: every unit in Python, the scale from a list of all pairwise differences."""
+    import math
+
+    import numpy as np
+
+    from layout.intake.robust import _PAIR_TO_SD, Outlier
+
+    groups = [[v for _, v in vs] for vs in values.values()]
+    diffs = [abs(a - b) for g in groups for i, a in enumerate(g) for b in g[i + 1 :]]
+    scale = float(np.median(diffs)) / _PAIR_TO_SD if diffs else 0.0
+    if scale <= 0:
+        return []
+    found = []
+    for unit, vs in values.items():
+        s = len(vs)
+        if s < 3:
+            continue
+        total = sum(v for _, v in vs)
+        spread = scale * math.sqrt(1 + 1 / (s - 1))
+        slot, v = max(vs, key=lambda sv: abs(sv[1] - (total - sv[1]) / (s - 1)))
+        others = (total - v) / (s - 1)
+        if abs(v - others) / spread > threshold:
+            found.append(Outlier(slot, unit, v, others, abs(v - others) / spread))
+    return found
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    st.lists(
+        st.lists(st.floats(-1e6, 1e6, allow_nan=False) | st.sampled_from([0.0, 1.0, 1.5, 2.0]), min_size=1, max_size=9),
+        min_size=1,
+        max_size=30,
+    ),
+    st.floats(0.5, 6.0),
+)
+def test_outliers_in_numpy_equal_the_unit_by_unit_rule(groups: list[list[float]], threshold: float) -> None:
+    from layout.intake.robust import find_outliers
+
+    values = {f"U{i}": [(f"U{i}-{j}", v) for j, v in enumerate(g)] for i, g in enumerate(groups)}
+    assert find_outliers(values, threshold) == _outliers_by_hand(values, threshold)

@@ -52,13 +52,23 @@ def _cell(e: Entry, name: str) -> str:
     return show_value(e.values[name]) if name in e.values else e.raw.get(name, "")
 
 
-def merge_entries(plan: Plan, entries: list[Entry]) -> tuple[dict[Key, Merged], list[Finding]]:
-    """One Merged per (slot, round) that any row names, and the findings of bringing rows together."""
+def merge_entries(plan: Plan, entries: list[Entry], quick: bool = True) -> tuple[dict[Key, Merged], list[Finding]]:
+    """One Merged per (slot, round) that any row names, and the findings of bringing rows together.
+
+    quick builds the Merged of a slot's first filled row (without note or added cells) in one step; the same
+    result as the general way (tests/test_fast_path.py).
+    """
     merged: dict[Key, Merged] = {}
     found: list[Finding] = []
     for e in entries:
         key = (e.slot.code, e.round)
         m = merged.get(key)
+        if quick and m is None and not e.note and not e.extras and e.filled:
+            # the first row of a slot, and the usual one: what _take would copy into an empty Merged
+            merged[key] = Merged(
+                e.slot, e.round, dict(e.values), e.reason, [], {}, dict(e.rejected), set(e.raw), [e], errors=e.errors
+            )
+            continue
         if m is None:
             m = merged[key] = Merged(e.slot, e.round)
         m.seen.update(e.raw)

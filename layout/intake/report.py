@@ -6,6 +6,9 @@ import json
 from pathlib import Path
 from typing import Any, Final
 
+import numpy as np
+import pandas as pd
+
 from layout.files import write_all
 from layout.intake.check import CheckResult
 from layout.intake.proposals import proposals_csv
@@ -62,18 +65,20 @@ def report_json(result: CheckResult) -> str:
 
 
 def _unit_status(result: CheckResult) -> dict[tuple[str, str], str]:
-    """(unit, round) → the worst status of its slots."""
+    """(unit, round) → the worst status of its slots; some slots missing (not all) is 'partial'."""
     order = ["ok", "declared-missing", "partial", "conflict", "error", "missing"]
-    status: dict[tuple[str, str], list[str]] = {}
     tidy = result.tidy[result.tidy["status"] != "unmatched"]
-    for unit, rnd, s in zip(tidy["unit"], tidy["round"], tidy["status"], strict=True):
-        status.setdefault((unit, rnd), []).append(s)
-    out = {}
-    for key, values in status.items():
-        if "missing" in values and not all(v == "missing" for v in values):
-            values = [v if v != "missing" else "partial" for v in values]
-        out[key] = max(values, key=order.index)
-    return out
+    rank = tidy["status"].map({s: i for i, s in enumerate(order)}).astype(float)
+    missing, partial = order.index("missing"), order.index("partial")
+    frame = pd.DataFrame(
+        {"unit": tidy["unit"], "round": tidy["round"], "rank": rank, "kept": rank.where(rank != missing)}
+    )
+    by = frame.groupby(["unit", "round"], sort=False)
+    worst, least, kept = by["rank"].max(), by["rank"].min(), by["kept"].max()
+    # slots missing beside present ones count as 'partial', and the worst of those and the rest is the unit's
+    mixed = (worst == missing) & (least < missing)
+    worst = worst.where(~mixed, np.fmax(kept, partial))
+    return {key: order[int(r)] for key, r in zip(worst.index, worst.to_numpy(), strict=True)}
 
 
 def _strip_plots(plan: Plan, result: CheckResult, unblind: bool) -> list[dict[str, Any]]:

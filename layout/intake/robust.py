@@ -50,6 +50,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
+from itertools import combinations
 from typing import Final
 
 import numpy as np
@@ -82,10 +83,20 @@ class Swap:
 
 def pooled_subsample_scale(groups: Sequence[Sequence[float]]) -> float:
     """Robust σ of subsamples within units from all within-unit pairwise differences."""
-    diffs = [abs(a - b) for g in groups for i, a in enumerate(g) for b in g[i + 1 :]]
+    diffs = [
+        np.abs(m[:, i] - m[:, j]) for m in _by_size(groups).values() for i, j in combinations(range(m.shape[1]), 2)
+    ]
     if not diffs:
         return 0.0
-    return float(np.median(diffs)) / _PAIR_TO_SD
+    return float(np.median(np.concatenate(diffs))) / _PAIR_TO_SD
+
+
+def _by_size(groups: Sequence[Sequence[float]]) -> dict[int, np.ndarray]:
+    """The groups as one units × values matrix per group size (the median needs only the set of differences)."""
+    sized: dict[int, list[Sequence[float]]] = {}
+    for g in groups:
+        sized.setdefault(len(g), []).append(g)
+    return {n: np.array(gs, dtype=float).reshape(len(gs), n) for n, gs in sized.items()}
 
 
 def outlier_threshold(tested: int, df: float = np.inf, alpha: float = OUTLIER_ALPHA) -> float:
@@ -140,13 +151,15 @@ def swap_candidates(plan: Plan, means: dict[str, float]) -> int:
 
 def find_outliers(values: dict[str, list[tuple[str, float]]], threshold: float) -> list[Outlier]:
     """The value of a unit farthest from the unit's other values, when it is beyond threshold on the pooled scale."""
-    scale = pooled_subsample_scale([[v for _, v in vs] for vs in values.values()])
+    plain = [[v for _, v in vs] for vs in values.values()]
+    scale = pooled_subsample_scale(plain)
     if scale <= 0:
         return []
+    maybe = _may_stand_out(plain, scale, threshold)
     found = []
-    for unit, vs in values.items():
+    for k, (unit, vs) in enumerate(values.items()):
         s = len(vs)
-        if s < 3:
+        if s < 3 or not maybe[k]:
             continue
         total = sum(v for _, v in vs)
         spread = scale * math.sqrt(1 + 1 / (s - 1))  # plain floats: numpy scalars cost a microsecond a value
@@ -156,6 +169,27 @@ def find_outliers(values: dict[str, list[tuple[str, float]]], threshold: float) 
         if best is not None and best.score > threshold:
             found.append(best)
     return found
+
+
+def _may_stand_out(plain: list[list[float]], scale: float, threshold: float) -> list[bool]:
+    """Per unit, whether its farthest value may score above threshold: the same arithmetic in numpy for all
+    units of one size, with a margin, so only those few go through the exact per-unit code above."""
+    out = [True] * len(plain)
+    sized: dict[int, list[int]] = {}
+    for k, g in enumerate(plain):
+        sized.setdefault(len(g), []).append(k)
+    for s, which in sized.items():
+        if s < 3:
+            continue
+        m = np.array([plain[k] for k in which], dtype=float)
+        total = np.zeros(len(which))
+        for j in range(s):  # left to right, as sum() adds
+            total = total + m[:, j]
+        others = (total[:, None] - m) / (s - 1)
+        score = np.abs(m - others).max(axis=1) / (scale * math.sqrt(1 + 1 / (s - 1)))
+        for k, high in zip(which, (score > threshold * (1 - 1e-9)).tolist(), strict=True):
+            out[k] = high
+    return out
 
 
 def _design_matrix(plan: Plan, units: list[Unit], treatments: list[str]) -> tuple[np.ndarray, int]:

@@ -152,7 +152,10 @@ def completeness(plan: Plan, merged: dict[Key, Merged]) -> list[Finding]:
     """missing-value, declared-missing and reason-with-value for each slot, once every file's rows are merged."""
     responses = {r.name: r for r in plan.spec.response}
     found: list[Finding] = []
+    every = len(responses)
     for m in merged.values():
+        if not m.reason and len(m.values) == every:
+            continue  # every response has a value and no reason is given: nothing to say (most slots)
         e = m.anchor
         where = {"file": e.file, "row": e.row, "code": m.slot.code, "unit": m.slot.unit}
         blank = [
@@ -203,6 +206,8 @@ def status(m: Merged | None, plan: Plan, required: list[str] | None = None) -> s
         return "missing"
     if m.conflict:
         return "conflict"
+    if not (m.errors or m.rejected or m.reason) and len(m.values) == len(plan.spec.response):
+        return "ok"  # every response has a value (most slots)
     if required is None:
         required = [r.name for r in plan.spec.response if r.required]
     required_blank = [n for n in required if n in m.seen and n not in m.values and n not in m.rejected]

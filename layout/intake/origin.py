@@ -28,8 +28,27 @@ def code_cells(table: ReturnedTable, cols: Columns) -> list[str]:
     return [str(cells[i]).strip() for _, cells in table.rows if i < len(cells) and not is_blank(cells[i])]
 
 
+def _mostly_planned(table: ReturnedTable, cols: Columns, idx: PlanIndex) -> bool:
+    """True as soon as more than 1 − SHARE of the rows hold a planned slot code exactly: the file cannot be foreign
+    then (a usual file is settled within its first half, without reading every code as text)."""
+    i = cols.structure.get("code")
+    if i is None:
+        return False
+    enough = (1 - SHARE) * len(table.rows)
+    exact = idx.slot_by_code
+    known = 0
+    for _, cells in table.rows:
+        if i < len(cells) and cells[i] in exact:
+            known += 1
+            if known > enough:
+                return True
+    return False
+
+
 def foreign_file(table: ReturnedTable, cols: Columns, idx: PlanIndex) -> Finding | None:
     """wrong-plan when most of the file's codes belong to another study or another draw of this one."""
+    if _mostly_planned(table, cols, idx):
+        return None
     codes = code_cells(table, cols)
     if len(codes) < FEWEST_CODES:
         return None

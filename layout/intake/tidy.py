@@ -83,7 +83,10 @@ def tidy_table(plan: Plan, merged: dict[Key, Merged], unmatched: list[Unmatched]
         (s[0].file if len(s) == 1 else "; ".join(dict.fromkeys(e.file for e in s))) if s else None for s in sources
     ]
     data["source_row"] = [s[0].row if s else None for s in sources]
-    data["fix"] = [" ".join(dict.fromkeys(i for e in s for i in e.fixes)) or None for s in sources]
+    data["fix"] = [
+        (" ".join(dict.fromkeys(i for e in s for i in e.fixes)) or None) if s and (len(s) > 1 or s[0].fixes) else None
+        for s in sources
+    ]
     for x in unmatched:
         row = {
             "code": x.code or None,

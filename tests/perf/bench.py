@@ -8,7 +8,10 @@ Run by hand (not part of the test suite):
 
 Every step runs in a fresh Python process, three times by default; the median time and the
 largest peak memory (ru_maxrss of that process) are reported. Ratios are layout's median over
-the baseline's median from the same run, so they hold on any machine.
+the baseline's median from the same run, so they hold on any machine. The timed part of each
+step leaves out the imports on both sides (the baseline imports its library, layout the
+modules of the command, before the clock starts); "process s" is the whole process, imports
+and start-up included. `plan` is timed as a whole process, as its target is.
 """
 
 from __future__ import annotations
@@ -77,8 +80,9 @@ STEPS = {
     ),
     "check": (
         "layout",
-        "from layout.cli import main\nimport contextlib, io\nt=time.perf_counter()\n"
-        "with contextlib.redirect_stdout(io.StringIO()):\n"
+        # the command's modules are imported before the clock starts, as the baseline imports calamine first
+        "from layout.cli import main\nimport contextlib, io\nimport layout.intake.check, layout.intake.report\n"
+        "t=time.perf_counter()\nwith contextlib.redirect_stdout(io.StringIO()):\n"
         "    main(['check', W+'/plan.json', W+'/filled.xlsx', '-o', W+'/checked', '--force'])\n"
         "print(time.perf_counter()-t)",
     ),

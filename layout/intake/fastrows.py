@@ -13,6 +13,7 @@ from __future__ import annotations
 import math
 import re
 from collections.abc import Callable
+from operator import itemgetter
 from typing import Any, Final
 
 from layout.intake.columns import Columns
@@ -22,6 +23,7 @@ from layout.plan import Unit
 from layout.spec import Response
 
 SLOW: Final = object()  # a cell the per-row path must look at
+_BLANK: Final = frozenset({None, ""})
 
 Reader = Callable[[Any], Any]  # a non-blank cell → (its value, its text as typed), or SLOW
 
@@ -100,8 +102,11 @@ class FastRows:
         for name, i in cols.responses.items():
             read = _reader(idx.responses[name], table.decimal_comma)
             self.responses.append((name, i, read))
-        self.quiet = [i for i in (cols.reason, cols.note, *cols.extras.values()) if i is not None]
+        self.quiet = _getter([i for i in (cols.reason, cols.note, *cols.extras.values()) if i is not None])
         self.formula_rows = {row for row, _ in table.formulas}
+        self.structure_cells = _getter(self.structure)
+        self.as_written = {code: tuple(w for w, _ in p) for code, p in self.planned.items()}
+        self.as_typed = {code: tuple(t for _, t in p) for code, p in self.planned.items()}
 
     def entry(self, number: int, cells: list[Any]) -> Entry | None:
         """The row's entry when it passes every quick test, else None."""
@@ -110,10 +115,13 @@ class FastRows:
         slot = self.slots.get(cells[self.code_at])
         if slot is None:
             return None
-        for i, (want, typed) in zip(self.structure, self.planned[slot.unit], strict=True):
-            cell = cells[i]
-            if (cell != want and cell != typed) or type(cell) is bool:
-                return None
+        got = self.structure_cells(cells)
+        if got != self.as_written[slot.unit] and got != self.as_typed[slot.unit]:
+            for cell, (want, typed) in zip(got, self.planned[slot.unit], strict=True):  # a CSV may mix the two
+                if cell != want and cell != typed:
+                    return None
+        if bool in set(map(type, got)):  # True == 1.0, but a ticked box is no block number
+            return None
         if self.subsample_at is not None:
             cell = cells[self.subsample_at]
             if (cell != slot.subsample and cell != str(slot.subsample)) or type(cell) is bool:
@@ -124,10 +132,8 @@ class FastRows:
             rnd = self.rounds.get(cells[self.round_at])
         if rnd is None:
             return None
-        for i in self.quiet:
-            cell = cells[i]
-            if cell is not None and cell != "":
-                return None
+        if not set(self.quiet(cells)) <= _BLANK:
+            return None
         values: dict[str, Any] = {}
         raw: dict[str, str] = {}
         for name, i, read in self.responses:
@@ -140,6 +146,14 @@ class FastRows:
                 return None
             values[name], raw[name] = got
         return Entry(slot, rnd, values, None, None, {}, self.file, number, 0, raw)
+
+
+def _getter(indexes: list[int]) -> Callable[[list[Any]], tuple[Any, ...]]:
+    """The cells at these indexes as a tuple, taken in one call."""
+    if len(indexes) == 1:
+        only = indexes[0]
+        return lambda cells: (cells[only],)
+    return itemgetter(*indexes) if indexes else lambda cells: ()
 
 
 def _planned(unit: Unit, name: str) -> tuple[Any, Any]:

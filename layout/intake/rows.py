@@ -33,7 +33,7 @@ class Entry:
     @property
     def filled(self) -> bool:
         """Whether the row says anything about the slot: a response cell or a missing reason."""
-        return bool(self.reason) or any(text for text in self.raw.values())
+        return bool(self.reason) or any(self.raw.values())
 
 
 @dataclass(slots=True)  # one per row or slot: slots make them smaller and quicker

@@ -37,6 +37,9 @@ def analyze(plan: Plan, tidy: pd.DataFrame, accepted: list[str] | None = None) -
     planned = tidy[tidy["status"].fillna("") != "unmatched"]
     counts = None
     parts = {rnd.name: planned[planned["round"].astype(str) == rnd.name] for rnd in plan.rounds}
+    unit_codes = pd.Index([u.code for u in plan.units])
+    # each row's unit as its place in the plan (-1: not a planned unit), found once per round
+    places = {name: unit_codes.get_indexer(part["unit"].astype(str).to_numpy()) for name, part in parts.items()}
     for r in plan.spec.response:
         if r.kind in ("text", "date"):
             continue
@@ -46,7 +49,9 @@ def analyze(plan: Plan, tidy: pd.DataFrame, accepted: list[str] | None = None) -
                 results.append(_category(plan, r.name, rnd.name, part))
             else:
                 counts = _planned_counts(plan) if counts is None else counts
-                results.append(_numeric(plan, r.name, rnd.name, part, counts, integer=r.kind == "integer"))
+                results.append(
+                    _numeric(plan, r.name, rnd.name, part, places[rnd.name], counts, integer=r.kind == "integer")
+                )
     return {
         "format": "layout-analysis/1",
         "plan": plan.fingerprint,
@@ -55,14 +60,13 @@ def analyze(plan: Plan, tidy: pd.DataFrame, accepted: list[str] | None = None) -
     }
 
 
-def _values(plan: Plan, name: str, part: pd.DataFrame) -> tuple[list[Unit], list[np.ndarray]]:
+def _values(plan: Plan, name: str, part: pd.DataFrame, place: np.ndarray) -> tuple[list[Unit], list[np.ndarray]]:
+    """The planned units with values, and their values in file order; place: each row's unit's place in the plan."""
     vals = pd.to_numeric(part[name], errors="coerce").to_numpy(dtype=float)
     keep = ~np.isnan(vals)
     if not keep.any():
         return [], []
-    # each value's unit as its place in the plan (-1: not a planned unit), then grouped by a stable sort,
-    # so each unit's values stay in file order
-    place = pd.Index([u.code for u in plan.units]).get_indexer(part["unit"].astype(str).to_numpy()[keep])
+    place = place[keep]
     planned = place >= 0
     order = np.argsort(place[planned], kind="stable")
     grouped, by_place = vals[keep][planned][order], place[planned][order]
@@ -85,9 +89,15 @@ def unit_means_of(values: list[np.ndarray]) -> np.ndarray:
 
 
 def _numeric(
-    plan: Plan, name: str, rnd: str, part: pd.DataFrame, planned_counts: np.ndarray, integer: bool
+    plan: Plan,
+    name: str,
+    rnd: str,
+    part: pd.DataFrame,
+    place: np.ndarray,
+    planned_counts: np.ndarray,
+    integer: bool,
 ) -> dict[str, Any]:
-    units, values = _values(plan, name, part)
+    units, values = _values(plan, name, part, place)
     notes: list[str] = []
     if integer:
         notes.append("an integer response, analysed as numbers")

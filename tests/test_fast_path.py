@@ -235,3 +235,37 @@ def test_outliers_in_numpy_equal_the_unit_by_unit_rule(groups: list[list[float]]
 
     values = {f"U{i}": [(f"U{i}-{j}", v) for j, v in enumerate(g)] for i, g in enumerate(groups)}
     assert find_outliers(values, threshold) == _outliers_by_hand(values, threshold)
+
+
+CELLS = st.one_of(st.none(), st.text(max_size=8), st.sampled_from(["a,b", 'q"r', "x\ny", "a\rb", " sp", "=1", ""]))
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    st.lists(st.tuples(st.none() | st.integers(-(2**53), 2**53), st.none() | st.floats(), CELLS), max_size=20),
+)
+def test_tidy_csv_writes_what_pandas_writes(rows: list[tuple[Any, Any, Any]]) -> None:
+    """tidy_csv against pandas' DataFrame.to_csv (the reference writer) on nullable integers and floats and odd text."""
+    from layout.intake.tidy import tidy_csv
+
+    frame = pd.DataFrame(
+        {
+            "serial": pd.array([r[0] for r in rows], dtype="Int64"),
+            "mass": pd.array([r[1] for r in rows], dtype="Float64"),
+            "note": pd.Series([r[2] for r in rows], dtype=object),
+            "code": pd.Series([r[2] or "x" for r in rows], dtype="str"),
+        }
+    )
+    assert tidy_csv(frame) == frame.to_csv(index=False, lineterminator="\n")
+
+
+def test_tidy_csv_of_real_checks(plan: Plan, filled: Path, tmp_path: Path) -> None:
+    """The tidy tables of a clean return and of a return with conflicts, duplicates and unplaced rows."""
+    from layout.intake.tidy import tidy_csv
+
+    values = tc.published_fill(plan)
+    changed = tc.edited(filled, tmp_path / "c.xlsx", tc._append_copy(tc._changed_value)(plan, values))
+    odd = tc.edited(filled, tmp_path / "o.xlsx", tc._append_copy(tc._foreign_code)(plan, values))
+    for paths in ([filled], [changed, odd, tc.to_csv(filled, tmp_path / "copy.csv")]):
+        tidy = check_returns(plan, paths).tidy
+        assert tidy_csv(tidy) == tidy.to_csv(index=False, lineterminator="\n")

@@ -12,6 +12,7 @@ import pandas as pd
 from layout.files import write_all
 from layout.intake.check import CheckResult
 from layout.intake.proposals import proposals_csv
+from layout.intake.tidy import tidy_csv
 from layout.meta import __version__
 from layout.plan import Plan
 from layout.render import BLOCK_COLOURS, map_cells, page_context, template_env
@@ -207,7 +208,7 @@ def write_report(
     texts = [
         report_json(result),
         report_html(plan, result, unblind),
-        result.tidy.to_csv(index=False, lineterminator="\n"),
+        tidy_csv(result.tidy),
         "\ufeff" + proposals_csv(result.proposals),  # with a BOM, so Excel reads it as UTF-8
     ]
     return write_all(out_dir, dict(zip(REPORT_FILES, texts, strict=True)), force)

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import csv
+import io
 from typing import Any
 
 import pandas as pd
@@ -107,3 +109,15 @@ def tidy_table(plan: Plan, merged: dict[Key, Merged], unmatched: list[Unmatched]
         elif r.kind == "number":
             frame[r.name] = frame[r.name].astype("Float64")
     return frame
+
+
+def tidy_csv(frame: pd.DataFrame) -> str:
+    """The text of frame.to_csv(index=False, lineterminator="\\n"), written column by column: the same
+    text (tested), in a fraction of the time at 100,000 rows. Both go through the csv module, which writes
+    None as an empty cell and a float by its repr."""
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow(frame.columns)
+    columns = [frame[c].to_numpy(dtype=object, na_value=None) for c in frame.columns]
+    writer.writerows(zip(*columns))
+    return out.getvalue()

@@ -119,5 +119,5 @@ def tidy_csv(frame: pd.DataFrame) -> str:
     writer = csv.writer(out, lineterminator="\n")
     writer.writerow(frame.columns)
     columns = [frame[c].to_numpy(dtype=object, na_value=None) for c in frame.columns]
-    writer.writerows(zip(*columns))
+    writer.writerows(zip(*columns, strict=True))
     return out.getvalue()

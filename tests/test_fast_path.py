@@ -26,6 +26,7 @@ from layout import Plan, load_spec, loads_spec, make_plan
 from layout.intake import fastrows, merge, rows
 from layout.intake.check import CheckResult, check_returns
 from layout.intake.columns import map_columns
+from layout.intake.fixes import FIX_COLUMNS, read_fixes
 from layout.intake.readers import ReturnedTable, read_returned
 from layout.intake.rows import PlanIndex, check_rows
 from layout.outputs.workbook import workbook_bytes
@@ -35,13 +36,13 @@ from tests import test_check as tc
 RETURNS = Path(__file__).parent / "returns"
 
 
-def both(plan: Plan, paths: list[Path]) -> tuple[CheckResult, CheckResult]:
-    """The check as the command makes it, and the same check with the quick path turned off."""
-    quick = check_returns(plan, paths)
+def both(plan: Plan, paths: list[Path], fixes: Path | None = None) -> tuple[CheckResult, CheckResult]:
+    """The check as the command makes it, and the same check with the quick paths turned off."""
+    quick = check_returns(plan, paths, fixes=read_fixes(fixes) if fixes else None)
     with pytest.MonkeyPatch.context() as mp:
         mp.setattr(gather_module, "check_rows", functools.partial(rows.check_rows, quick=False))
         mp.setattr(check_module, "merge_entries", functools.partial(merge.merge_entries, quick=False))
-        slow = check_returns(plan, paths)
+        slow = check_returns(plan, paths, fixes=read_fixes(fixes) if fixes else None)
     return quick, slow
 
 
@@ -109,6 +110,29 @@ def test_two_files_with_duplicates_and_conflicts(plan: Plan, filled: Path, tmp_p
     values = tc.published_fill(plan)
     changed = tc.edited(filled, tmp_path / "c.xlsx", tc._append_copy(tc._changed_value)(plan, values))
     assert_same(*both(plan, [changed, tc.to_csv(filled, tmp_path / "copy.csv")]))
+
+
+def test_approved_fixes(tmp_path: Path) -> None:
+    """test_fixes' study (a workbook and a re-typed CSV with a slip, a lost decimal point, a conflict and a
+    foreign row), checked with every proposed fix approved: both sides of the conflict too, so a bad-fix is
+    among what is compared."""
+    from tests import test_fixes as tf
+
+    fx_plan = make_plan(loads_spec(tf.SPEC, "fx.toml"))
+    study = tf.make_study(fx_plan, tmp_path)
+    paths = [study["book"], study["csv"]]
+    proposed = check_returns(fx_plan, paths).proposals
+    assert proposed
+    fixes = tmp_path / "fixes.csv"
+    tf.approve(
+        [{k: str(p.get(k) or "") for k in (*FIX_COLUMNS, "finding")} for p in proposed],
+        fixes,
+        **{p["fix"]: p["value"] or study["true_high"] for p in proposed},
+    )
+    quick, slow = both(fx_plan, paths, fixes)
+    assert quick.fixes
+    assert_same(quick, slow)
+    assert [a.to_dict() for a in quick.fixes] == [a.to_dict() for a in slow.fixes]
 
 
 def test_swapped_units(plan: Plan, filled: Path, tmp_path: Path) -> None:

@@ -71,6 +71,10 @@ def swap_digits(code: str) -> str:
 
 @pytest.fixture
 def study(plan: Plan, tmp_path: Path) -> dict[str, Path | str]:
+    return make_study(plan, tmp_path)
+
+
+def make_study(plan: Plan, tmp_path: Path) -> dict[str, Path | str]:
     """plan.json, the filled workbook (the first 18 slots) and the re-typed CSV (the other 9, plus mistakes)."""
     values = dict(zip([s.code for s in plan.slots], nist_values("SmLs01"), strict=False))
     plan.save(tmp_path / "plan.json", force=True)

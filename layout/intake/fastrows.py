@@ -141,10 +141,10 @@ class FastRows:
             if cell is None or cell == "":
                 raw[name] = ""
                 continue
-            got = SLOW if read is None else read(cell)
-            if got is SLOW:
+            parsed = SLOW if read is None else read(cell)
+            if parsed is SLOW:
                 return None
-            values[name], raw[name] = got
+            values[name], raw[name] = parsed
         return Entry(slot, rnd, values, None, None, {}, self.file, number, 0, raw)
 
 

@@ -135,6 +135,17 @@ def test_approved_fixes(tmp_path: Path) -> None:
     assert [a.to_dict() for a in quick.fixes] == [a.to_dict() for a in slow.fixes]
 
 
+def test_libreoffice_resaves(plan: Plan, filled: Path, soffice: str, tmp_path: Path) -> None:
+    """The filled workbook, with a conflicting copy row, re-saved by LibreOffice as .xlsx, .ods and .csv."""
+    from tests.conftest import libreoffice_convert
+
+    values = tc.published_fill(plan)
+    changed = tc.edited(filled, tmp_path / "c.xlsx", tc._append_copy(tc._changed_value)(plan, values))
+    for fmt in ("xlsx", "ods", "csv"):
+        resaved = libreoffice_convert(soffice, changed, fmt, tmp_path / fmt)
+        assert_same(*both(plan, [resaved]))
+
+
 def test_swapped_units(plan: Plan, filled: Path, tmp_path: Path) -> None:
     path = tc.edited(filled, tmp_path / "swap.xlsx", tc._swap_units(plan, tc.published_fill(plan)))
     assert_same(*both(plan, [path]))

@@ -165,9 +165,9 @@ def _sheets(args: argparse.Namespace) -> int:
 
 
 def print_check_summary(result: CheckResult, written: list[Path]) -> None:
+    """Counts by kind and the first findings."""
     from layout.intake.findings import Severity
 
-    """Counts by kind and the first findings."""
     s = result.summary
     out.print(
         f"{s['study']}: {s['slots_found']} of {s['slots_expected']} slot-rounds found in {len(s['files'])} file(s)"

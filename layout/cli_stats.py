@@ -51,9 +51,9 @@ def _analyze(args: argparse.Namespace) -> int:
 
 
 def print_analysis(result: dict[str, Any]) -> None:
+    """One ANOVA table per response and round, with the error term of each F."""
     from layout.stats.output import fmt
 
-    """One ANOVA table per response and round, with the error term of each F."""
     for r in result["results"]:
         out.print(f"\n{r['response']}, round {r['round']} ({r['method']})", style="bold")
         if r["method"] in ("anova", "unit-means"):

@@ -83,20 +83,26 @@ class Swap:
 
 def pooled_subsample_scale(groups: Sequence[Sequence[float]]) -> float:
     """Robust σ of subsamples within units from all within-unit pairwise differences."""
-    diffs = [
-        np.abs(m[:, i] - m[:, j]) for m in _by_size(groups).values() for i, j in combinations(range(m.shape[1]), 2)
-    ]
+    return _scale_of(_by_size(groups))
+
+
+Sized = dict[int, tuple[list[int], np.ndarray]]  # group size → (the groups' places, their units × values matrix)
+
+
+def _by_size(groups: Sequence[Sequence[float]]) -> Sized:
+    """The groups as one matrix per group size, with where each row came from."""
+    places: dict[int, list[int]] = {}
+    for k, g in enumerate(groups):
+        places.setdefault(len(g), []).append(k)
+    return {n: (ks, np.array([groups[k] for k in ks], dtype=float).reshape(len(ks), n)) for n, ks in places.items()}
+
+
+def _scale_of(sized: Sized) -> float:
+    """pooled_subsample_scale of groups already in matrices (the median needs only the set of differences)."""
+    diffs = [np.abs(m[:, i] - m[:, j]) for _, m in sized.values() for i, j in combinations(range(m.shape[1]), 2)]
     if not diffs:
         return 0.0
     return float(np.median(np.concatenate(diffs))) / _PAIR_TO_SD
-
-
-def _by_size(groups: Sequence[Sequence[float]]) -> dict[int, np.ndarray]:
-    """The groups as one units × values matrix per group size (the median needs only the set of differences)."""
-    sized: dict[int, list[Sequence[float]]] = {}
-    for g in groups:
-        sized.setdefault(len(g), []).append(g)
-    return {n: np.array(gs, dtype=float).reshape(len(gs), n) for n, gs in sized.items()}
 
 
 def outlier_threshold(tested: int, df: float = np.inf, alpha: float = OUTLIER_ALPHA) -> float:
@@ -151,11 +157,11 @@ def swap_candidates(plan: Plan, means: dict[str, float]) -> int:
 
 def find_outliers(values: dict[str, list[tuple[str, float]]], threshold: float) -> list[Outlier]:
     """The value of a unit farthest from the unit's other values, when it is beyond threshold on the pooled scale."""
-    plain = [[v for _, v in vs] for vs in values.values()]
-    scale = pooled_subsample_scale(plain)
+    sized = _by_size([[v for _, v in vs] for vs in values.values()])
+    scale = _scale_of(sized)
     if scale <= 0:
         return []
-    maybe = _may_stand_out(plain, scale, threshold)
+    maybe = _may_stand_out(sized, len(values), scale, threshold)
     found = []
     for k, (unit, vs) in enumerate(values.items()):
         s = len(vs)
@@ -171,17 +177,13 @@ def find_outliers(values: dict[str, list[tuple[str, float]]], threshold: float) 
     return found
 
 
-def _may_stand_out(plain: list[list[float]], scale: float, threshold: float) -> list[bool]:
+def _may_stand_out(sized: Sized, count: int, scale: float, threshold: float) -> list[bool]:
     """Per unit, whether its farthest value may score above threshold: the same arithmetic in numpy for all
     units of one size, with a margin, so only those few go through the exact per-unit code above."""
-    out = [True] * len(plain)
-    sized: dict[int, list[int]] = {}
-    for k, g in enumerate(plain):
-        sized.setdefault(len(g), []).append(k)
-    for s, which in sized.items():
+    out = [True] * count
+    for s, (which, m) in sized.items():
         if s < 3:
             continue
-        m = np.array([plain[k] for k in which], dtype=float)
         total = np.zeros(len(which))
         for j in range(s):  # left to right, as sum() adds
             total = total + m[:, j]

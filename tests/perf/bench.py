@@ -83,8 +83,9 @@ STEPS = {
         # the command's modules are imported before the clock starts, as the baseline imports calamine first
         "from layout.cli import main\nimport contextlib, io\nimport layout.intake.check, layout.intake.report\n"
         "t=time.perf_counter()\nwith contextlib.redirect_stdout(io.StringIO()):\n"
-        "    main(['check', W+'/plan.json', W+'/filled.xlsx', '-o', W+'/checked', '--force'])\n"
-        "print(time.perf_counter()-t)",
+        "    rc = main(['check', W+'/plan.json', W+'/filled.xlsx', '-o', W+'/checked', '--force'])\n"
+        "t = time.perf_counter() - t\n"
+        "assert rc == 0, f'the check of clean simulated returns exited {rc}: stale --work files?'\nprint(t)",
     ),
     "check-baseline": (
         "python-calamine read of the same file",

@@ -112,7 +112,7 @@ def check_rows(
 
     quick lets rows that need no finding through layout.intake.fastrows; the result is the same without it.
     """
-    from layout.intake.fastrows import FastRows
+    from layout.intake.fastrows import FastRows  # here, not above: fastrows builds on this module's Entry
 
     entries: list[Entry] = []
     unmatched: list[Unmatched] = []

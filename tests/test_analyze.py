@@ -146,6 +146,14 @@ class TestPublishedNested:
         assert t["sampling error"]["ss"] == pytest.approx(203.92685, abs=5e-6)
         assert round(t["treatment"]["f"], 3) == 3.918 and round(t["treatment"]["p"], 3) == 0.119
         assert t["treatment"]["error_term"] == "experimental error"
+        # tidy.csv edited by hand, with text in the number column: read as text and coerced, not refused
+        path = tmp_path / "checked" / "tidy.csv"
+        edited = pd.read_csv(path, dtype=str, keep_default_na=False)
+        edited.loc[0, "density"] = "n/a"
+        edited.to_csv(path, index=False)
+        plan = make_plan(loads_spec(FLATWORM_SPEC, "spec.toml"))
+        (again,) = analyze(plan, load_checked(plan, tmp_path / "checked").tidy)["results"]
+        assert again["method"] == "unit-means" and again["table"][0]["df"] == 1
 
     def test_cortisol(self, tmp_path: Path) -> None:
         """Doncaster & Davey (2007) model 2.1(i): A 1, 177.13, F 8.64, P 0.026; B(A) 6, 122.99, 20.50, F 3.78,
@@ -187,6 +195,11 @@ def _design_data(design: str) -> tuple[Plan, list, list[np.ndarray]]:
     designs = {
         "rcbd": 'type = "rcbd"\nblocks = 4\nsubsamples = 3\ntreatments = ["a", "b", "c"]',
         "latin": 'type = "latin-square"\nsubsamples = 2\ntreatments = ["a", "b", "c", "d"]',
+        "crd": 'type = "crd"\nreplicates = 4\nsubsamples = 2\ntreatments = ["a", "b", "c"]',
+        "factorial": (
+            'type = "crd"\nreplicates = 3\nsubsamples = 2\n[[factor]]\nname = "p"\nlevels = ["p1", "p2"]\n'
+            '[[factor]]\nname = "q"\nlevels = ["q1", "q2", "q3"]'
+        ),
         "split": (
             'type = "split-plot"\nblocks = 3\nsubsamples = 2\n[[factor]]\nname = "w"\nlevels = ["w1", "w2"]\nwhole_plot = true\n'
             '[[factor]]\nname = "v"\nlevels = ["v1", "v2", "v3"]'
@@ -199,16 +212,18 @@ def _design_data(design: str) -> tuple[Plan, list, list[np.ndarray]]:
         )
     )
     raw = iter(nist_values("SiRstv") + nist_values("SmLs02"))
-    units = list(plan.units)
+    # the crds lose their first two units: unequal replication, so cells hold different numbers of units
+    units = list(plan.units)[2:] if design in ("crd", "factorial") else list(plan.units)
     values = [np.array([next(raw) * (1 + 0.01 * units.index(u)) for _ in plan.slots_of[u.code]]) for u in units]
     return plan, units, values
 
 
 class TestAgainstStatsmodels:
-    @pytest.mark.parametrize("design", ["rcbd", "latin", "split"])
+    @pytest.mark.parametrize("design", ["rcbd", "latin", "split", "crd", "factorial"])
     def test_type_one_sums_of_squares(self, design: str) -> None:
         """statsmodels OLS with type-I sums of squares agrees to 1e-8: the design's terms fitted to the unit means
-        (times s; their residual is the experimental error), the sampling error as the residual of y ~ C(unit)."""
+        (times s; their residual is the experimental error), the sampling error as the residual of y ~ C(unit).
+        The crds have unequal replication, so the fit on weighted cell means is checked where cells differ."""
         import statsmodels.formula.api as smf
         from statsmodels.stats.anova import anova_lm
 
@@ -229,6 +244,8 @@ class TestAgainstStatsmodels:
             "rcbd": "y ~ C(block) + C(treatment)",
             "latin": "y ~ C(row) + C(col) + C(treatment)",
             "split": "y ~ C(block) + C(w) + C(block):C(w) + C(v) + C(w):C(v)",
+            "crd": "y ~ C(treatment)",
+            "factorial": "y ~ C(p) + C(q) + C(p):C(q)",
         }[design]
         ref = anova_lm(smf.ols(formula, pd.DataFrame(unit_rows)).fit(), typ=1)
         obs = pd.DataFrame([{"y": x, "unit": u.code} for u, v in zip(units, values, strict=True) for x in v])
@@ -250,6 +267,8 @@ class TestAgainstStatsmodels:
                 "C(w):C(v)": "w:v",
                 "Residual": "sub-plot error",
             },
+            "crd": {"C(treatment)": "treatment", "Residual": "experimental error"},
+            "factorial": {"C(p)": "p", "C(q)": "q", "C(p):C(q)": "p:q", "Residual": "experimental error"},
         }[design]
         for theirs, mine in names.items():
             assert ours[mine].df == ref.loc[theirs, "df"], mine
@@ -419,6 +438,18 @@ class TestMethods:
             means.setdefault(plan.unit_by_code[unit].treatment, []).append(group["density"].mean())
         ref = stats.f_oneway(*means.values())
         assert r["table"][0]["f"] == pytest.approx(ref.statistic, rel=1e-10)
+
+    def test_planned_counts_from_the_table_or_the_plan(self) -> None:
+        """tidy.csv has a row for every planned slot, so the slots per unit are counted there; a table with rows
+        deleted by hand is counted from the plan instead. Either way a lost subsample is seen as lost."""
+        plan = make_plan(loads_spec(FLATWORM_SPEC, "s.toml"))
+        dropped = self._tidy(plan, drop_slots=2)
+        blanked = self._tidy(plan)
+        blanked.loc[~blanked["code"].isin(dropped["code"]), "density"] = np.nan
+        assert len(blanked) == len(plan.slots) > len(dropped)
+        assert analyze(plan, blanked) == analyze(plan, dropped)
+        (r,) = analyze(plan, dropped)["results"]
+        assert r["method"] == "unit-means"
 
     def test_missing_units_by_reml(self) -> None:
         """With a whole unit missing, REML through statsmodels is used and named."""

@@ -10,6 +10,8 @@ Category responses get a count table of unit-level summaries and a test of indep
 from __future__ import annotations
 
 from collections import Counter
+from dataclasses import dataclass
+from functools import cached_property
 from operator import attrgetter
 from typing import Any
 
@@ -34,9 +36,8 @@ def analyze(plan: Plan, tidy: pd.DataFrame, accepted: list[str] | None = None) -
     results = []
     wanted = [c for c in ("unit", "round", "status", *(r.name for r in plan.spec.response)) if c in tidy.columns]
     tidy = tidy[wanted]  # only what is used: filtering every column of a large table costs more than the analysis
-    planned = tidy[tidy["status"].fillna("") != "unmatched"]
-    counts = None
-    parts = {rnd.name: planned[planned["round"].astype(str) == rnd.name] for rnd in plan.rounds}
+    planned = _rows_where(tidy, tidy["status"].fillna("") != "unmatched")
+    parts = {rnd.name: _rows_where(planned, planned["round"].astype(str) == rnd.name) for rnd in plan.rounds}
     unit_codes = pd.Index([u.code for u in plan.units])
     # each row's unit as its place in the plan (-1: not a planned unit), found once per round
     places = {name: unit_codes.get_indexer(part["unit"].astype(str).to_numpy()) for name, part in parts.items()}
@@ -48,7 +49,7 @@ def analyze(plan: Plan, tidy: pd.DataFrame, accepted: list[str] | None = None) -
             if r.kind == "category":
                 results.append(_category(plan, r.name, rnd.name, part))
             else:
-                counts = _planned_counts(plan) if counts is None else counts
+                counts = _planned_counts(plan, places[rnd.name])
                 results.append(
                     _numeric(plan, r.name, rnd.name, part, places[rnd.name], counts, integer=r.kind == "integer")
                 )
@@ -60,32 +61,60 @@ def analyze(plan: Plan, tidy: pd.DataFrame, accepted: list[str] | None = None) -
     }
 
 
-def _values(plan: Plan, name: str, part: pd.DataFrame, place: np.ndarray) -> tuple[list[Unit], list[np.ndarray]]:
+@dataclass
+class UnitValues:
+    """The values of the units that have any, grouped: flat[starts[i] : starts[i] + counts[i]] are units[i]'s."""
+
+    units: list[Unit]
+    flat: np.ndarray
+    counts: np.ndarray
+
+    @cached_property
+    def starts(self) -> np.ndarray:
+        return np.concatenate([[0], np.cumsum(self.counts)[:-1]]).astype(int)
+
+    @cached_property
+    def arrays(self) -> list[np.ndarray]:
+        """One array per unit (slow at 20,000 units, so only for the small or rare paths)."""
+        return [self.flat[a : a + n] for a, n in zip(self.starts.tolist(), self.counts.tolist(), strict=True)]
+
+    def means(self) -> np.ndarray:
+        return np.add.reduceat(self.flat, self.starts) / self.counts
+
+    def grid(self) -> np.ndarray:
+        """units x subsamples, when every unit has the same number of values (no copy)."""
+        return self.flat.reshape(len(self.units), -1)
+
+
+def _values(plan: Plan, name: str, part: pd.DataFrame, place: np.ndarray) -> UnitValues:
     """The planned units with values, and their values in file order; place: each row's unit's place in the plan."""
     vals = pd.to_numeric(part[name], errors="coerce").to_numpy(dtype=float)
     keep = ~np.isnan(vals)
-    if not keep.any():
-        return [], []
     place = place[keep]
     planned = place >= 0
     order = np.argsort(place[planned], kind="stable")
     grouped, by_place = vals[keep][planned][order], place[planned][order]
-    present, starts, counts = np.unique(by_place, return_index=True, return_counts=True)
-    units = [plan.units[i] for i in present.tolist()]
-    return units, [grouped[a : a + n] for a, n in zip(starts.tolist(), counts.tolist(), strict=True)]
+    present, counts = np.unique(by_place, return_counts=True)
+    units = list(plan.units) if len(present) == len(plan.units) else [plan.units[i] for i in present.tolist()]
+    return UnitValues(units, grouped, counts)
 
 
-def _planned_counts(plan: Plan) -> np.ndarray:
-    """Slots per unit, in the plan's unit order (counted without a container per unit)."""
-    counts = Counter(map(attrgetter("unit"), plan.slots))
-    return np.array([counts[u.code] for u in plan.units])
+def _rows_where(table: pd.DataFrame, keep: pd.Series) -> pd.DataFrame:
+    """The rows kept, without a copy when that is all of them (the usual case)."""
+    return table if keep.all() else table[keep]
 
 
-def unit_means_of(values: list[np.ndarray]) -> np.ndarray:
-    """The mean of each unit's values, in one pass over them all."""
-    lengths = np.fromiter(map(len, values), dtype=int, count=len(values))
-    starts = np.concatenate([[0], np.cumsum(lengths)[:-1]])
-    return np.add.reduceat(np.concatenate(values), starts) / lengths
+def _planned_counts(plan: Plan, place: np.ndarray) -> np.ndarray:
+    """Slots per unit in the plan's unit order; place: the unit's place of each planned row of one round.
+
+    tidy.csv has a row for every planned slot and round, so they are counted there; a table that does
+    not add up to the plan's slots (edited by hand) is counted from the plan instead.
+    """
+    counts = np.bincount(place[place >= 0], minlength=len(plan.units))
+    if counts.sum() == len(plan.slots):
+        return counts
+    by_unit = Counter(map(attrgetter("unit"), plan.slots))
+    return np.array([by_unit[u.code] for u in plan.units])
 
 
 def _numeric(
@@ -97,7 +126,8 @@ def _numeric(
     planned_counts: np.ndarray,
     integer: bool,
 ) -> dict[str, Any]:
-    units, values = _values(plan, name, part, place)
+    values = _values(plan, name, part, place)
+    units = values.units
     notes: list[str] = []
     if integer:
         notes.append("an integer response, analysed as numbers")
@@ -107,17 +137,17 @@ def _numeric(
         notes.append("too few units with values to analyse")
         return out
     complete = len(units) == len(plan.units)
-    lengths = np.fromiter(map(len, values), dtype=int, count=len(values))
+    lengths = values.counts
     full = complete and bool((lengths == planned_counts).all())
     equal = bool((lengths == lengths[0]).all())
-    means = unit_means_of(values)
+    means = values.means()
     parts = unit_table(plan, units, means, 1.0)  # on the unit means, for the ANOVA (times s) and the unit-means F
     if full and equal:
-        table = anova(plan, units, values, parts)
+        table = anova(plan, units, values.grid(), parts)
         out["method"] = "anova"
     else:
         if not complete:
-            reml = _reml(plan, name, units, values)
+            reml = _reml(plan, name, units, values.arrays)
             if reml is not None:
                 out.update(reml)
                 notes.append(
@@ -199,9 +229,7 @@ def _combos(plan: Plan) -> list[tuple[str, ...]]:
     return [c for k in range(2, len(names) + 1) for c in combinations(names, k)]
 
 
-def _means(
-    plan: Plan, table: Table, units: list[Unit], values: list[np.ndarray], unit_means: np.ndarray
-) -> dict[str, Any]:
+def _means(plan: Plan, table: Table, units: list[Unit], values: UnitValues, unit_means: np.ndarray) -> dict[str, Any]:
     """Means of every treatment factor (and of the treatments) with SE from their error term and Tukey's HSD."""
     names = factor_names(plan)
     split = plan.spec.design.type == "split-plot"
@@ -211,20 +239,28 @@ def _means(
         err = table.row(row.error if row and row.error else ("sub-plot error" if split else "experimental error"))
         if err is None or err.ms is None or err.df <= 0:
             continue
-        keys = np.array(levels_of(units, source))
-        groups = {str(k): unit_means[keys == k].tolist() for k in dict.fromkeys(keys.tolist())}  # units in order
+        groups = _grouped(levels_of(units, source), unit_means)
         order = list(plan.spec.treatments) if source == "treatment" else _level_order(plan, source)
         groups = {k: groups[k] for k in sorted(groups, key=lambda k: order.index(k) if k in order else len(order))}
         per_mean = table.subsamples * min(len(g) for g in groups.values())
         out["means"][source] = {"error_term": err.source, **means_and_pairs(groups, err.ms, err.df, per_mean)}
-        if "points" not in out and sum(map(len, values)) <= 5000:
+        if "points" not in out and len(values.flat) <= 5000:
             # for the plot: each level's unit means and subsample values
             subs: dict[str, list[float]] = {}
-            for u, v in zip(units, values, strict=True):
+            for u, v in zip(units, values.arrays, strict=True):
                 key = level_of(u, source)
                 subs.setdefault(key, []).extend(float(x) for x in v)
             out["points"] = {"source": source, "units": groups, "subsamples": subs}
     return out
+
+
+def _grouped(keys: list[str], unit_means: np.ndarray) -> dict[str, list[float]]:
+    """The unit means of each level, levels in order of first appearance, units in order within a level."""
+    which, levels = pd.factorize(np.array(keys, dtype=object))
+    order = np.argsort(which, kind="stable")
+    ends = np.cumsum(np.bincount(which, minlength=len(levels))).tolist()
+    means = unit_means[order].tolist()
+    return {str(k): means[a:b] for k, a, b in zip(levels, [0, *ends[:-1]], ends, strict=True)}
 
 
 def _level_order(plan: Plan, source: str) -> list[str]:

@@ -13,10 +13,11 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
+import pandas as pd
 from scipy import stats
 
 from layout.plan import Plan, Unit
-from layout.stats.terms import Term, columns, design_terms
+from layout.stats.terms import Term, columns, design_terms, levels_of
 
 
 @dataclass
@@ -57,22 +58,45 @@ class Table:
         return next((r for r in self.rows if r.source == source), None)
 
 
-def _fit_rss(x: np.ndarray, y: np.ndarray) -> tuple[float, int]:
-    # lstsq's rank has numpy.linalg.matrix_rank's default tolerance (largest singular value × max(M, N) × eps)
-    beta, _, rank, _ = np.linalg.lstsq(x, y, rcond=None)
+def _fit_rss(x: np.ndarray, y: np.ndarray, rcond: float) -> tuple[float, int]:
+    beta, _, rank, _ = np.linalg.lstsq(x, y, rcond=rcond)
     resid = y - x @ beta
     return float(resid @ resid), int(rank)
 
 
+def _cells(plan: Plan, units: list[Unit]) -> tuple[np.ndarray, list[Unit]]:
+    """Each unit's cell (its combination of every part of the design's terms), and one unit standing for each cell."""
+    cell = np.zeros(len(units), dtype=np.int64)
+    for part in dict.fromkeys(p for term in design_terms(plan) for p in term.parts):
+        which, levels = pd.factorize(np.array(levels_of(units, part), dtype=object))
+        cell = pd.factorize(cell * len(levels) + which)[0]  # renumbered each time, so it cannot overflow
+    _, first = np.unique(cell, return_index=True)
+    return cell, [units[i] for i in first.tolist()]
+
+
 def unit_table(plan: Plan, units: list[Unit], means: np.ndarray, weight: float) -> list[tuple[Term | None, int, float]]:
-    """(term, df, ss) for every design term on the unit means, then (None, df, ss) for what is left."""
+    """(term, df, ss) for every design term on the unit means, then (None, df, ss) for what is left.
+
+    Every column of every term is constant within a cell, so the fits are done on the cell means weighted by
+    the units in each (the same fitted values; the spread within cells is added to each residual sum of squares):
+    a crd of 20 treatments fits 20 rows, not 20,000.
+    """
     y = means - np.median(means)
-    x = np.ones((len(units), 1))
+    cell, standing = _cells(plan, units)
+    n = np.bincount(cell)
+    cell_mean = np.bincount(cell, y) / n
+    within = float(((y - cell_mean[cell]) ** 2).sum())
+    w = np.sqrt(n)
+    # singular values of the weighted cell rows are those of the unit rows (same X'X), so lstsq's default cut-off
+    # for the units' matrix (eps × its larger dimension) makes the same rank decisions
+    rcond = np.finfo(float).eps * len(units)
+    x = np.ones((len(standing), 1))
     rss, rank = float(((y - y.mean()) ** 2).sum()), 1  # the intercept alone: the fit is the mean
     out: list[tuple[Term | None, int, float]] = []
     for term in design_terms(plan):
-        x = np.column_stack([x, columns(term, units)])
-        new_rss, new_rank = _fit_rss(x, y)
+        x = np.column_stack([x, columns(term, standing)])
+        cell_rss, new_rank = _fit_rss(x * w[:, None], cell_mean * w, max(rcond, np.finfo(float).eps * x.shape[1]))
+        new_rss = within + cell_rss
         out.append((term, new_rank - rank, weight * max(rss - new_rss, 0.0)))
         rss, rank = new_rss, new_rank
     out.append((None, len(units) - rank, weight * rss))
@@ -115,15 +139,16 @@ def _is_whole(plan: Plan, part: str) -> bool:
 def anova(
     plan: Plan,
     units: list[Unit],
-    values: list[np.ndarray],
+    values: list[np.ndarray] | np.ndarray,
     on_means: list[tuple[Term | None, int, float]] | None = None,
 ) -> Table:
-    """The ANOVA with subsampling of balanced data: values[i] are the subsample values of units[i].
+    """The ANOVA with subsampling of balanced data: values[i] are the subsample values of units[i]
+    (a list of equal-length arrays, or a units x subsamples array).
 
     on_means, when given, is unit_table of the unit means at weight 1 (computed once by the caller).
     """
     s = len(values[0])
-    grid = np.array(values, dtype=float)  # units x subsamples: the data are balanced
+    grid = np.asarray(values, dtype=float)  # units x subsamples: the data are balanced
     means = grid.mean(axis=1)
     centre = float(np.median(grid))  # sums of squares about the median first, for their precision
     sampling_ss = float(((grid - means[:, None]) ** 2).sum())

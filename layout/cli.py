@@ -207,8 +207,10 @@ def print_check_summary(result: CheckResult, written: list[Path]) -> None:
 def _check(args: argparse.Namespace) -> int:
     from layout.intake.check import check_returns
     from layout.intake.fixes import read_fixes
+    from layout.intake.readahead import ReadAhead
     from layout.intake.report import write_report
 
+    ahead = ReadAhead(args.returned)  # the first workbook is parsed in a thread while the plan loads
     plan = load_plan(args.plan)
     for path in args.returned:
         if not Path(path).exists():
@@ -223,7 +225,7 @@ def _check(args: argparse.Namespace) -> int:
             )
         fixes = read_fixes(args.fixes)
     with err.status("checking") as status:
-        result = check_returns(plan, args.returned, progress=lambda step: status.update(step), fixes=fixes)
+        result = check_returns(plan, args.returned, progress=lambda step: status.update(step), fixes=fixes, ahead=ahead)
     folder = Path(args.output) if args.output else Path(args.plan).parent / "checked"
     written = write_report(plan, result, folder, force=args.force, unblind=args.unblind)
     unread = [

@@ -16,6 +16,7 @@ from layout.intake.fixes import Applied, FixBook
 from layout.intake.gather import gather
 from layout.intake.merge import Key, Merged, completeness, merge_entries, missing_slots
 from layout.intake.proposals import propose_fixes
+from layout.intake.readahead import ReadAhead
 from layout.intake.safety import DEFAULT_LIMITS, Limits
 from layout.intake.screen import statistical_findings
 from layout.intake.tidy import tidy_table
@@ -50,15 +51,17 @@ def check_returns(
     progress: Callable[[str], None] | None = None,
     fixes: FixBook | None = None,
     limits: Limits = DEFAULT_LIMITS,
+    ahead: ReadAhead | None = None,
 ) -> CheckResult:
     """Check returned .xlsx/.csv files against the plan; returns findings and the tidy table.
 
     progress, when given, is called with a short description before each step. fixes, when
     given, are applied to the rows as read before anything is checked; the files are only read.
+    ahead: the reads of these files, when started before the plan was loaded (ReadAhead(paths, limits)).
     """
     say = progress or (lambda _: None)
     book = fixes or FixBook("")
-    got = gather(plan, paths, say, book, limits)
+    got = gather(plan, paths, say, book, limits, ahead)
     found = apply_keep_this(got.entries, list(got.findings), got.keep_this, book)
     found = book.bad + found + _columns_nowhere(plan, got.entries)
     say("merging and looking for missing slots")

@@ -19,7 +19,8 @@ from layout.intake.findings import Finding, Kind, Severity, finding
 from layout.intake.fix_apply import apply_row_fixes
 from layout.intake.fixes import Fix, FixBook
 from layout.intake.origin import foreign_file
-from layout.intake.readers import ReturnedTable, read_returned
+from layout.intake.readahead import ReadAhead
+from layout.intake.readers import ReturnedTable
 from layout.intake.rows import Entry, PlanIndex, Unmatched, check_rows
 from layout.intake.safety import DEFAULT_LIMITS, Limits
 from layout.plan import Plan
@@ -60,13 +61,20 @@ def gather(
     say: Callable[[str], None],
     fixes: FixBook | None = None,
     limits: Limits = DEFAULT_LIMITS,
+    ahead: ReadAhead | None = None,
 ) -> Gathered:
-    """Every returned file read, its approved row fixes applied, and its rows checked, in the order given."""
+    """Every returned file read, its approved row fixes applied, and its rows checked, in the order given.
+
+    ahead: the files' reads, when the caller started them already (they must be of these paths).
+    """
+    if ahead is not None and ahead.paths != [str(p) for p in paths]:
+        raise ValueError("the reads started are not of the files to check")
+    ahead = ahead or ReadAhead(paths, limits)
     idx = PlanIndex(plan)
     out = Gathered()
     book = fixes or FixBook("")
     seen: dict[str, str] = {}
-    for path in paths:
+    for place, path in enumerate(paths):
         name = str(path)
         say(f"reading {name}")
         digest = _digest(Path(path))
@@ -87,7 +95,7 @@ def gather(
         record: dict[str, Any] = {"file": name, "sha256": digest}
         out.files.append(record)
         try:
-            table = read_returned(path, limits)
+            table = ahead.take(place)
         except UnreadableFile as exc:
             out.findings.append(
                 finding(Kind.UNREADABLE_FILE, f"cannot be checked: {exc.problems[0].message}", file=name)

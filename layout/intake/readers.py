@@ -12,6 +12,7 @@ from __future__ import annotations
 import csv
 import io
 import zipfile
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Final
@@ -49,26 +50,40 @@ def read_returned(path: str | Path, limits: Limits = DEFAULT_LIMITS) -> Returned
 
     An .xlsm is read for its values only; no macro is ever run (nothing in a file is).
     """
+    return open_returned(path, limits)()
+
+
+def open_returned(path: str | Path, limits: Limits = DEFAULT_LIMITS) -> Callable[[], ReturnedTable]:
+    """The safety checks of read_returned, done now (UnreadableFile if they fail), and its parse, to be called.
+
+    For a workbook the parse is calamine's, which releases the GIL, so it may run in another thread while
+    this one works; nothing of the file is parsed before it has passed the checks.
+    """
     p = Path(path)
     if not p.is_file():
         raise _unreadable(p, "no such file" if not p.exists() else "not a file")
     suffix = p.suffix.lower()
     if suffix in (".xlsx", ".xlsm"):
-        return _read_book(p, formulas=inspect_zip(p, limits))  # the zip was scanned once, formulas noted
+        formulas = inspect_zip(p, limits)  # the zip was scanned once, formulas noted
+        return lambda: _read_book(p, formulas=formulas)
     if suffix == ".ods":
         inspect_zip(p, limits)
-        table = _read_book(p, formulas=False)
-        try:
-            table.formulas = ods_formula_cells(p, table.sheet or "")
-        except Exception:  # the values were read; only the formula warning is lost
-            table.formulas = set()
-        return table
+        return lambda: _read_ods(p)
     if suffix in (".xls", ".xlsb"):
         # binary formats: formulas cannot be told from typed values there, and their parsers are old attack surface
         raise _unreadable(p, f"is in the binary Excel format ({suffix}), which is not read; open it and save as .xlsx")
     if suffix in (".csv", ".txt", ".tsv"):
-        return _read_csv(p, limits)
+        return lambda: _read_csv(p, limits)
     raise _unreadable(p, f"not a workbook or CSV file (ending {suffix or 'none'}); return .xlsx, .ods or .csv files")
+
+
+def _read_ods(p: Path) -> ReturnedTable:
+    table = _read_book(p, formulas=False)
+    try:
+        table.formulas = ods_formula_cells(p, table.sheet or "")
+    except Exception:  # the values were read; only the formula warning is lost
+        table.formulas = set()
+    return table
 
 
 def _header_at(rows: list[list[Any]]) -> int:

@@ -222,3 +222,19 @@ class TestLargeStudies:
         assert shown_and_left and int(shown_and_left.group(2)) == 2 and int(shown_and_left.group(1)) > 0
         assert "too many to draw" in html and "per-unit plots are left out" in html
         assert '<svg class="strip"' not in html
+
+
+def test_progress_names_each_step(setup: tuple[Path, Path], rcbd_plan: Plan) -> None:
+    """The spinner's text names each step that takes seconds in a large check: every file as it is read (a copy
+    included, which is then passed over), the merge, the screening."""
+    from layout.intake.check import check_returns
+
+    _, filled = setup
+    steps: list[str] = []
+    check_returns(rcbd_plan, [filled, filled], progress=steps.append)
+    assert steps == [
+        f"reading {filled}",
+        f"reading {filled}",
+        "merging and looking for missing slots",
+        "looking for outlying subsamples and swapped units",
+    ]

@@ -16,6 +16,7 @@ from rich.table import Table
 
 from layout.cli_stats import add_commands, print_analysis
 from layout.errors import LayoutError, PlanError, UsageError
+from layout.files import refuse_existing
 from layout.meta import PRODUCTS, __version__
 
 if TYPE_CHECKING:
@@ -208,8 +209,11 @@ def _check(args: argparse.Namespace) -> int:
     from layout.intake.check import check_returns
     from layout.intake.fixes import read_fixes
     from layout.intake.readahead import ReadAhead
-    from layout.intake.report import write_report
+    from layout.intake.report import REPORT_FILES, write_report
 
+    folder = Path(args.output) if args.output else Path(args.plan).parent / "checked"
+    for name in REPORT_FILES:  # refused now, not after a check that may take a minute
+        refuse_existing(folder / name, args.force)
     ahead = ReadAhead(args.returned)  # the first workbook is parsed in a thread while the plan loads
     plan = load_plan(args.plan)
     for path in args.returned:
@@ -226,7 +230,6 @@ def _check(args: argparse.Namespace) -> int:
         fixes = read_fixes(args.fixes)
     with err.status("checking") as status:
         result = check_returns(plan, args.returned, progress=lambda step: status.update(step), fixes=fixes, ahead=ahead)
-    folder = Path(args.output) if args.output else Path(args.plan).parent / "checked"
     written = write_report(plan, result, folder, force=args.force, unblind=args.unblind)
     unread = [
         f

@@ -101,6 +101,26 @@ class TestExitCodes:
         assert (out / "report.json").read_bytes() == before
         assert main(["check", str(plan), str(filled), "-o", str(out), "--force"]) == 0
 
+    def test_existing_report_refused_before_the_check_runs(
+        self, setup: tuple[Path, Path], tmp_path: Path, monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture
+    ) -> None:
+        """Without --force, a report already in the folder is refused at once, not after a check of a large
+        return (which may take a minute): the check is never started."""
+        import layout.intake.check
+
+        plan, filled = setup
+        out = tmp_path / "r"
+        out.mkdir()
+        (out / "tidy.csv").write_text("kept\n", encoding="utf-8")
+
+        def no_check(*args: object, **kwargs: object) -> None:
+            raise AssertionError("the check ran")
+
+        monkeypatch.setattr(layout.intake.check, "check_returns", no_check)
+        assert main(["check", str(plan), str(filled), "-o", str(out)]) == 2
+        assert "tidy.csv: already exists" in capsys.readouterr().err
+        assert (out / "tidy.csv").read_text(encoding="utf-8") == "kept\n" and not (out / "report.json").exists()
+
 
 class TestApi:
     def test_check_returns_gives_findings_and_dataframe(self, setup: tuple[Path, Path], rcbd_plan: Plan) -> None:

@@ -9,6 +9,7 @@ Category responses get a count table of unit-level summaries and a test of indep
 
 from __future__ import annotations
 
+import warnings
 from collections import Counter
 from dataclasses import dataclass
 from functools import cached_property
@@ -149,10 +150,11 @@ def _numeric(
         if not complete:
             reml = _reml(plan, name, units, values.arrays)
             if reml is not None:
-                out.update(reml)
                 notes.append(
                     f"{len(plan.units) - len(units)} unit(s) have no values: fitted by REML (statsmodels MixedLM)"
                 )
+                notes += reml.pop("notes")  # out["notes"] is this list: update must not replace it
+                out.update(reml)
                 return out
             notes.append(
                 f"{len(plan.units) - len(units)} unit(s) have no values and statsmodels is not installed: "
@@ -281,11 +283,18 @@ def _reml(plan: Plan, name: str, units: list[Unit], values: list[np.ndarray]) ->
     frame = pd.DataFrame(rows)
     frame["y"] -= frame["y"].median()
     formula = "y ~ C(treatment)" + (" + C(block)" if plan.spec.design.type in ("rcbd", "split-plot") else "")
-    try:
-        fit = smf.mixedlm(formula, frame, groups=frame["unit"]).fit(reml=True)
-        wald = fit.wald_test_terms(scalar=True)
-    except Exception as exc:  # a model that does not converge is reported, not raised
-        return {"method": "reml", "table": [], "notes": [f"REML fit failed: {exc}"]}
+    # statsmodels' warnings (an optimiser retried or not converged, an estimate on the boundary) belong in the
+    # analysis, where the reader of its results sees them, not as stray lines on the terminal
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        try:
+            fit = smf.mixedlm(formula, frame, groups=frame["unit"]).fit(reml=True)
+            wald = fit.wald_test_terms(scalar=True)
+        except Exception as exc:  # a model that does not converge is reported, not raised
+            return {"method": "reml", "table": [], "notes": [f"REML fit failed: {exc}"]}
+    said = [f"statsmodels warned: {text}" for text in dict.fromkeys(str(w.message) for w in caught)]
+    if not getattr(fit, "converged", True):
+        said.append("the REML fit did not converge: treat its estimates and tests with caution")
     table = [
         {
             "source": str(term).replace("C(", "").replace(")", ""),
@@ -299,6 +308,7 @@ def _reml(plan: Plan, name: str, units: list[Unit], values: list[np.ndarray]) ->
     return {
         "method": "reml",
         "table": table,
+        "notes": said,
         "components": {
             "unit": {"estimate": float(fit.cov_re.iloc[0, 0]), "method": "REML (statsmodels MixedLM)"},
             "subsample": {"estimate": float(fit.scale), "method": "REML (statsmodels MixedLM)"},

@@ -440,6 +440,15 @@ class TestMethods:
         ref = stats.f_oneway(*means.values())
         assert r["table"][0]["f"] == pytest.approx(ref.statistic, rel=1e-10)
 
+    def test_a_subsample_lost_in_every_unit_is_said_as_such(self) -> None:
+        """Every unit without its sixth subsample: the unit means are analysed (not every planned subsample has a
+        value), and the note does not claim unequal numbers, since every unit has five."""
+        plan = make_plan(loads_spec(FLATWORM_SPEC, "s.toml"))
+        (r,) = analyze(plan, self._tidy(plan, drop_slots=len(plan.units)))["results"]
+        assert r["method"] == "unit-means"
+        assert any("the same number in every unit" in n for n in r["notes"])
+        assert not any("unequal numbers" in n for n in r["notes"])
+
     def test_planned_counts_from_the_table_or_the_plan(self) -> None:
         """tidy.csv has a row for every planned slot, so the slots per unit are counted there; a table with rows
         deleted by hand is counted from the plan instead. Either way a lost subsample is seen as lost."""

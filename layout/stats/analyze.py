@@ -160,6 +160,10 @@ def _numeric(
                 f"{len(plan.units) - len(units)} unit(s) have no values and statsmodels is not installed: "
                 "analysed on the unit means, which ignores the unequal information (pip install 'layout[reml]')"
             )
+        elif equal:
+            notes.append(
+                "some planned subsamples have no values (the same number in every unit): analysed on the unit means"
+            )
         else:
             notes.append("units have unequal numbers of subsamples: analysed on the unit means")
         table = _unit_means_table(plan, units, means, parts)

@@ -24,19 +24,14 @@ def power_of(
     t: int, n: int, s: int, var_unit: float, var_sub: float, difference: float, alpha: float, design: str = "crd"
 ) -> float:
     """Power of the treatment F test with n units per treatment (blocks in an rcbd) and s subsamples each."""
-    df1 = t - 1
-    df2 = t * (n - 1) if design == "crd" else (t - 1) * (n - 1)
-    if df2 <= 0:
-        return float("nan")
-    lam = n * (difference**2 / 2) / (var_unit + var_sub / s)
-    crit = stats.f.isf(alpha, df1, df2)
-    return float(stats.ncf.sf(crit, df1, df2, lam))
+    return _powers(t, [(n, s)], var_unit, var_sub, difference, alpha, design)[0]
 
 
 def _powers(
     t: int, cells: list[tuple[int, int]], var_unit: float, var_sub: float, difference: float, alpha: float, design: str
 ) -> list[float]:
-    """power_of for every (n, s) at once: the same scipy functions, called once on arrays."""
+    """power_of for every (n, s) at once (λ and the df as in the module's note), one scipy call per function;
+    nan where the error has no df."""
     n = np.array([c[0] for c in cells], dtype=float)
     s = np.array([c[1] for c in cells], dtype=float)
     df1 = t - 1

@@ -510,6 +510,23 @@ class TestBadInput:
         assert main(["analyze", str(tmp_path / "plan.json"), str(book)]) == 2
         assert "is not a tidy table" in capsys.readouterr().err
 
+    def test_analyze_refuses_a_tidy_table_without_a_response_column(
+        self, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+    ) -> None:
+        """A tidy.csv cut down by hand (the response column gone): one line naming the column, exit 2."""
+        import json
+
+        plan = make_plan(loads_spec(FLATWORM_SPEC, "s.toml"))
+        plan.save(tmp_path / "plan.json")
+        folder = tmp_path / "checked"
+        folder.mkdir()
+        report = {"summary": {"plan": plan.fingerprint, "by_severity": {"error": 0}}}
+        (folder / "report.json").write_text(json.dumps(report), encoding="utf-8")
+        (folder / "tidy.csv").write_text(f"code,unit,round,status\n{plan.slots[0].code},x,1,ok\n", encoding="utf-8")
+        assert main(["analyze", str(tmp_path / "plan.json"), str(folder)]) == 2
+        err = capsys.readouterr().err.strip()
+        assert "'density'" in err and "tidy.csv" in err and "\n" not in err and "Traceback" not in err
+
 
 @pytest.mark.parametrize("k", [2, 3, 5, 10, 20, 40])
 def test_studentized_range_at_infinite_df_agrees_with_scipy(k: int) -> None:

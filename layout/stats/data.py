@@ -77,6 +77,16 @@ def load_checked(plan: Plan, where: str | Path, accept_errors: bool = False) -> 
         tidy = _read_tidy(plan, tidy_path)
     except (OSError, ValueError) as exc:
         raise LayoutError(Problem(str(tidy_path), "", f"cannot be read as a tidy table ({exc})")) from None
+    lacking = [c for c in ("unit", "round", "status", *(r.name for r in plan.spec.response)) if c not in tidy.columns]
+    if lacking:
+        raise LayoutError(
+            Problem(
+                str(tidy_path),
+                "header",
+                f"lacks the column(s) {', '.join(map(repr, lacking))} that check writes for this plan; "
+                "run 'layout check' again, or restore the columns",
+            )
+        )
     return Checked(tidy, tidy_path.parent, errors, accepted)
 
 

@@ -11,10 +11,11 @@ import hashlib
 import io
 from typing import TYPE_CHECKING, Any
 
+from layout.codes import parse_code
 from layout.intake.findings import Kind, Severity
 from layout.intake.fixes import FIX_COLUMNS
 from layout.intake.merge import Key, Merged
-from layout.intake.rows import PlanIndex, Unmatched
+from layout.intake.rows import Unmatched, code_lengths
 from layout.plan import Plan
 from layout.spreadsheet_text import neutral
 
@@ -67,12 +68,11 @@ def propose_fixes(
         if m.conflict:
             for e in m.rows:
                 add(e.file, e.row, e.slot.code, "", "keep-this", "", f"{m.slot.code} round {m.round}: conflicting rows")
-    if unmatched:  # an index of every code costs a tenth of a second at 100,000 slots: only when needed
-        idx = PlanIndex(plan)
-        for x in unmatched:
-            parts = idx.parse(x.code) if x.code else None
-            if parts is not None and parts.study != idx.study:
-                add(x.file, x.row, x.code, "", "ignore-row", "", f"a row of study {parts.study}")
+    study, lengths = plan.spec.study.id, code_lengths(plan)  # only the code's parts: no index of every code
+    for x in unmatched:
+        parts = parse_code(x.code, study, lengths) if x.code else None
+        if parts is not None and parts.study != study:
+            add(x.file, x.row, x.code, "", "ignore-row", "", f"a row of study {parts.study}")
     seen: set[str] = set()
     unique = [p for p in out if not (p["fix"] in seen or seen.add(p["fix"]))]  # type: ignore[func-returns-value]
     return sorted(unique, key=lambda p: (p["file"], p["row"], p["action"]))

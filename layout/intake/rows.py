@@ -48,6 +48,12 @@ class Unmatched:
     fixes: list[str] = field(default_factory=list)
 
 
+def code_lengths(plan: Plan) -> tuple[int, int]:
+    """The lengths of the plan's slot and unit serial parts, as parse_code takes them."""
+    width = serial_width(len(plan.units))
+    return width + subsample_width(plan.spec.design.most_subsamples), width
+
+
 class PlanIndex:
     """Look-ups into a plan for matching rows, built once per check."""
 
@@ -61,8 +67,7 @@ class PlanIndex:
         self.responses = {r.name: r for r in plan.spec.response}
         self.reasons = {m.lower(): m for m in plan.spec.collection.missing_reasons}
         self.study = plan.spec.study.id
-        width = serial_width(len(plan.units))
-        self.lengths = (width + subsample_width(plan.spec.design.most_subsamples), width)
+        self.lengths = code_lengths(plan)
 
     def parse(self, text: str) -> CodeParts | None:
         """A typed code taken apart with this plan's study id and widths."""

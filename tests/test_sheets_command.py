@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import hashlib
 import time
+from contextlib import contextmanager
 from pathlib import Path
 
 import openpyxl
@@ -111,3 +112,29 @@ class TestLetterPaper:
         g = LabelGeometry.for_paper("letter").check()
         assert g.top + g.rows * g.height <= PAPER_MM["letter"][1]
         assert "215.9mm 279.4mm" in (out / "labels.html").read_text()
+
+
+def test_progress_names_every_product_and_completes(
+    crd_plan: Plan, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """With progress on, each product that takes seconds at 100,000 slots has a bar, and every bar is
+    advanced to its total (a bar that never completes would leave the user guessing)."""
+    from layout.outputs import write
+
+    bars: dict[str, list[int]] = {}
+    real = write._Bar.task
+
+    def recording(self: object, name: str, total: int):  # type: ignore[no-untyped-def]
+        bars[name] = [0, total]
+        with real(self, name, total) as tick:  # type: ignore[arg-type]
+
+            def counted() -> None:
+                bars[name][0] += 1
+                tick()
+
+            yield counted
+
+    monkeypatch.setattr(write._Bar, "task", contextmanager(recording))
+    write_sheets(crd_plan, tmp_path / "out", SheetOptions(progress=True))
+    assert {"entry workbook", "collection sheets sheets.html", "slot labels", "unit labels"} <= set(bars)
+    assert all(done == total for done, total in bars.values()), bars

@@ -10,13 +10,16 @@ from typing import Any
 
 import pandas as pd
 
+from layout.intake.cleanrows import CleanBlock
 from layout.intake.findings import Finding, Kind, Severity, finding
 from layout.intake.fix_apply import apply_keep_this
 from layout.intake.fixes import Applied, FixBook
 from layout.intake.gather import gather
-from layout.intake.merge import Key, Merged, completeness, merge_entries, missing_slots
+from layout.intake.merge import completeness, missing_slots
 from layout.intake.proposals import propose_fixes
 from layout.intake.readahead import ReadAhead
+from layout.intake.returned import Returned, merge_returns, unblock_shared
+from layout.intake.rows import PlanIndex
 from layout.intake.safety import DEFAULT_LIMITS, Limits
 from layout.intake.screen import statistical_findings
 from layout.intake.tidy import tidy_table
@@ -61,31 +64,33 @@ def check_returns(
     """
     say = progress or (lambda _: None)
     book = fixes or FixBook("")
-    got = gather(plan, paths, say, book, limits, ahead)
-    found = apply_keep_this(got.entries, list(got.findings), got.keep_this, book)
-    found = book.bad + found + _columns_nowhere(plan, got.entries)
+    idx = PlanIndex(plan)
+    got = gather(plan, paths, say, book, limits, ahead, idx)
+    entries, blocks = unblock_shared(idx, got.entries, got.blocks, got.places)
+    found = apply_keep_this(entries, list(got.findings), got.keep_this, book)
+    found = book.bad + found + _columns_nowhere(plan, entries, blocks)
     say("merging and looking for missing slots")
-    merged, merge_findings = merge_entries(plan, got.entries)
+    merged, merge_findings = merge_returns(idx, entries, blocks, got.places)
     found += merge_findings
-    found += completeness(plan, merged)
+    found += completeness(plan, merged.special)
     cause = "; ".join(got.unusable) or None
-    missing = missing_slots(plan, merged, cause)
+    missing = missing_slots(plan, merged.present(), cause)
     found = _count_at_causes(found, got.unusable, missing) + missing
     say("looking for outlying subsamples and swapped units")
     stats, outliers, swaps = statistical_findings(plan, merged)
     found += stats
     tidy = tidy_table(plan, merged, got.unmatched)
     result = CheckResult(found, tidy, _summary(plan, found, merged, got.files), outliers, swaps, book.applied)
-    result.proposals = propose_fixes(plan, result, merged, got.unmatched)
+    result.proposals = propose_fixes(plan, result, merged.special, got.unmatched)
     return result
 
 
-def _columns_nowhere(plan: Plan, entries: list[Any]) -> list[Finding]:
+def _columns_nowhere(plan: Plan, entries: list[Any], blocks: list[CleanBlock]) -> list[Finding]:
     """missing-column for a response that no returned file has a column for: its values are nowhere."""
-    if not entries:
+    if not entries and not blocks:
         return []
     wanted = {r.name for r in plan.spec.response}
-    seen: set[str] = set()
+    seen: set[str] = {name for b in blocks for name in b.values}
     for e in entries:  # usually every response is seen in the first row
         seen.update(e.raw)
         if wanted <= seen:
@@ -116,16 +121,14 @@ def _count_at_causes(found: list[Finding], unusable: list[str], missing: list[Fi
     ]
 
 
-def _summary(
-    plan: Plan, found: list[Finding], merged: dict[Key, Merged], files: list[dict[str, Any]]
-) -> dict[str, Any]:
+def _summary(plan: Plan, found: list[Finding], merged: Returned, files: list[dict[str, Any]]) -> dict[str, Any]:
     by_severity = Counter(f.severity.value for f in found)
     return {
         "plan": plan.fingerprint,
         "study": plan.spec.study.id,
         "files": files,
         "slots_expected": len(plan.slots) * len(plan.rounds),
-        "slots_found": sum(1 for m in merged.values() if m.rows),
+        "slots_found": merged.clean_count + sum(1 for m in merged.special.values() if m.rows),
         "by_severity": {s.value: by_severity.get(s.value, 0) for s in Severity},
         "by_kind": dict(sorted(Counter(f.kind.value for f in found).items())),
     }

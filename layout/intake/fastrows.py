@@ -19,7 +19,6 @@ from typing import Any, Final
 from layout.intake.columns import Columns
 from layout.intake.readers import ReturnedTable
 from layout.intake.rows import Entry, PlanIndex
-from layout.plan import Unit
 from layout.spec import Response
 
 SLOW: Final = object()  # a cell the per-row path must look at
@@ -94,19 +93,20 @@ class FastRows:
         self.only_round = plan.rounds[0].name if len(plan.rounds) == 1 else None
         self.width = len(table.headers)
         checked = [name for name in ("unit", "block", "row", "col", "treatment") if name in cols.structure]
+        self.checked = checked
         self.structure = [cols.structure[name] for name in checked]
         self.subsample_at = cols.structure.get("subsample")
         # each unit's structure cells as the entry workbook writes them
-        self.planned = {u.code: tuple(_planned(u, name) for name in checked) for u in plan.units}
+        self.planned, self.as_written, self.as_typed = idx.planned_rows(tuple(checked))
         self.responses = []
+        self.response_of = idx.responses
         for name, i in cols.responses.items():
             read = _reader(idx.responses[name], table.decimal_comma)
             self.responses.append((name, i, read))
-        self.quiet = _getter([i for i in (cols.reason, cols.note, *cols.extras.values()) if i is not None])
+        self.quiet_at = [i for i in (cols.reason, cols.note, *cols.extras.values()) if i is not None]
+        self.quiet = _getter(self.quiet_at)
         self.formula_rows = {row for row, _ in table.formulas}
         self.structure_cells = _getter(self.structure)
-        self.as_written = {code: tuple(w for w, _ in p) for code, p in self.planned.items()}
-        self.as_typed = {code: tuple(t for _, t in p) for code, p in self.planned.items()}
 
     def entry(self, number: int, cells: list[Any]) -> Entry | None:
         """The row's entry when it passes every quick test, else None."""
@@ -154,11 +154,3 @@ def _getter(indexes: list[int]) -> Callable[[list[Any]], tuple[Any, ...]]:
         only = indexes[0]
         return lambda cells: (cells[only],)
     return itemgetter(*indexes) if indexes else lambda cells: ()
-
-
-def _planned(unit: Unit, name: str) -> tuple[Any, Any]:
-    """The planned value of a structure column as a workbook cell (numbers read as floats) and as CSV text."""
-    value = unit.code if name == "unit" else getattr(unit, name)  # block, row, col, treatment
-    if isinstance(value, int):
-        return float(value), str(value)
-    return value, value

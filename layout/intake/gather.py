@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import Any
 
 from layout.errors import UnreadableFile
+from layout.intake.cleanrows import CleanBlock, take_clean
 from layout.intake.columns import map_columns
 from layout.intake.findings import Finding, Kind, Severity, finding
 from layout.intake.fix_apply import apply_row_fixes
@@ -33,10 +34,16 @@ class Gathered:
     """Rows of every usable file, the findings of reading, and one record per file."""
 
     entries: list[Entry] = field(default_factory=list)
+    blocks: list[CleanBlock] = field(default_factory=list)  # the clean rows of each file, in columns
     unmatched: list[Unmatched] = field(default_factory=list)
     findings: list[Finding] = field(default_factory=list)
     files: list[dict[str, Any]] = field(default_factory=list)
     keep_this: list[Fix] = field(default_factory=list)  # fixes that settle conflicts, applied after reading
+
+    @property
+    def places(self) -> dict[str, int]:
+        """Each file's place in the order read."""
+        return {f["file"]: k for k, f in enumerate(self.files)}
 
     @property
     def unusable(self) -> list[str]:
@@ -62,6 +69,7 @@ def gather(
     fixes: FixBook | None = None,
     limits: Limits = DEFAULT_LIMITS,
     ahead: ReadAhead | None = None,
+    idx: PlanIndex | None = None,
 ) -> Gathered:
     """Every returned file read, its approved row fixes applied, and its rows checked, in the order given.
 
@@ -70,7 +78,7 @@ def gather(
     if ahead is not None and ahead.paths != [str(p) for p in paths]:
         raise ValueError("the reads started are not of the files to check")
     ahead = ahead or ReadAhead(paths, limits)
-    idx = PlanIndex(plan)
+    idx = idx or PlanIndex(plan)
     out = Gathered()
     book = fixes or FixBook("")
     seen: dict[str, str] = {}
@@ -163,10 +171,13 @@ def _rows_of(
         return
     table, cols, traces, later = apply_row_fixes(plan, table, cols, fixes, book)
     out.keep_this += later
+    block, table = take_clean(table, cols, idx, {*traces, *(f.row for f in later)})
+    if block is not None:
+        out.blocks.append(block)
     entries, unmatched, found = check_rows(table, cols, idx)
     for row in (*entries, *unmatched):
         row.fixes = list(traces.get(row.row, []))
     out.entries += entries
     out.unmatched += unmatched
     out.findings += found
-    record.update({"status": "read", "rows": len(entries) + len(unmatched)})
+    record.update({"status": "read", "rows": len(entries) + len(unmatched) + (len(block) if block else 0)})

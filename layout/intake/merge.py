@@ -13,6 +13,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
+
 from layout.intake.findings import Finding, Kind, finding, show_value
 from layout.intake.rows import Entry
 from layout.plan import Plan, Slot
@@ -218,19 +220,25 @@ def status(m: Merged | None, plan: Plan, required: list[str] | None = None) -> s
     return "ok"
 
 
-def missing_slots(plan: Plan, merged: dict[Key, Merged], cause: str | None = None) -> list[Finding]:
+def missing_slots(plan: Plan, present: np.ndarray, cause: str | None = None) -> list[Finding]:
     """missing-unit when every slot of a unit is absent in a round, else missing-slot per absent slot.
 
-    cause names the unusable file these may follow from, so reports can group them under it.
+    present: per round × slots + slot, whether some row names that slot in that round. cause names the
+    unusable file these may follow from, so reports can group them under it.
     """
     found: list[Finding] = []
-    for rnd in plan.rounds:
-        for u in plan.units:
-            slots = plan.slots_of[u.code]
-            absent = [s.code for s in slots if (s.code, rnd.name) not in merged]
-            if not absent:
-                continue
-            if len(absent) == len(slots):
+    slots = len(plan.slots)
+    unit_of = {u.code: k for k, u in enumerate(plan.units)}
+    unit_of_slot = np.array([unit_of[s.unit] for s in plan.slots], dtype=np.int64)
+    place_of_slot = {s.code: k for k, s in enumerate(plan.slots)}
+    for r, rnd in enumerate(plan.rounds):
+        here = present[r * slots : (r + 1) * slots]
+        lacking = np.bincount(unit_of_slot[~here], minlength=len(plan.units))
+        for k in np.flatnonzero(lacking).tolist():  # units in plan order, only those with an absent slot
+            u = plan.units[k]
+            of_unit = plan.slots_of[u.code]
+            absent = [s.code for s in of_unit if not here[place_of_slot[s.code]]]
+            if len(absent) == len(of_unit):
                 found.append(
                     finding(
                         Kind.MISSING_UNIT,

@@ -81,6 +81,45 @@ class Swap:
     score: float
 
 
+@dataclass
+class Grouped:
+    """One round and response's values, unit by unit: each unit's values together, in reading order."""
+
+    units: list[str]  # unit codes, in the order first read
+    slots: list[str]  # the slot of each value
+    values: np.ndarray  # float values, unit after unit
+    sizes: np.ndarray  # how many values each unit has
+
+    @classmethod
+    def of(cls, values: dict[str, list[tuple[str, float]]]) -> Grouped:
+        """From unit → [(slot, value)]."""
+        return cls(
+            list(values),
+            [slot for vs in values.values() for slot, _ in vs],
+            np.array([v for vs in values.values() for _, v in vs], dtype=float),
+            np.array([len(vs) for vs in values.values()], dtype=np.int64),
+        )
+
+    @property
+    def starts(self) -> np.ndarray:
+        return np.concatenate(([0], np.cumsum(self.sizes)[:-1])).astype(np.int64)
+
+    def means(self) -> dict[str, float]:
+        """Each unit's mean, its values added in order."""
+        unit = np.repeat(np.arange(len(self.units)), self.sizes)
+        totals = np.bincount(unit, self.values, minlength=len(self.units))  # added one by one, in order
+        return dict(zip(self.units, (totals / self.sizes).tolist(), strict=True))
+
+    def unit_values(self, k: int) -> list[tuple[str, float]]:
+        start = int(self.starts[k])
+        end = start + int(self.sizes[k])
+        return list(zip(self.slots[start:end], self.values[start:end].tolist(), strict=True))
+
+
+def _grouped(values: dict[str, list[tuple[str, float]]] | Grouped) -> Grouped:
+    return values if isinstance(values, Grouped) else Grouped.of(values)
+
+
 def pooled_subsample_scale(groups: Sequence[Sequence[float]]) -> float:
     """Robust σ of subsamples within units from all within-unit pairwise differences."""
     return _scale_of(_by_size(groups))
@@ -95,6 +134,16 @@ def _by_size(groups: Sequence[Sequence[float]]) -> Sized:
     for k, g in enumerate(groups):
         places.setdefault(len(g), []).append(k)
     return {n: (ks, np.array([groups[k] for k in ks], dtype=float).reshape(len(ks), n)) for n, ks in places.items()}
+
+
+def _sized(g: Grouped) -> Sized:
+    """_by_size of a Grouped, taken from its arrays."""
+    starts = g.starts
+    out: Sized = {}
+    for n in np.unique(g.sizes).tolist():
+        which = np.flatnonzero(g.sizes == n)
+        out[n] = (which.tolist(), g.values[starts[which][:, None] + np.arange(n)].reshape(len(which), n))
+    return out
 
 
 def _scale_of(sized: Sized) -> float:
@@ -114,9 +163,10 @@ def outlier_threshold(tested: int, df: float = np.inf, alpha: float = OUTLIER_AL
     return float(-stdtrit(max(df, 2.0), alpha / (2 * max(1, tested))))
 
 
-def scale_df(values: dict[str, list[tuple[str, float]]]) -> float:
+def scale_df(values: dict[str, list[tuple[str, float]]] | Grouped) -> float:
     """Effective degrees of freedom of the pooled scale: 0.37 of the within-unit df (a median's efficiency)."""
-    return 0.37 * sum(len(vs) - 1 for vs in values.values() if len(vs) >= 2)
+    sizes = _grouped(values).sizes
+    return 0.37 * int((sizes[sizes >= 2] - 1).sum())
 
 
 def swap_threshold(pairs: int, df: float = np.inf, leverage: float = 0.0, alpha: float = SWAP_ALPHA) -> float:
@@ -140,9 +190,10 @@ def fit_size(plan: Plan, means: dict[str, float]) -> tuple[int, float]:
     return n - rank, rank / max(1, n)
 
 
-def outlier_candidates(values: dict[str, list[tuple[str, float]]]) -> int:
+def outlier_candidates(values: dict[str, list[tuple[str, float]]] | Grouped) -> int:
     """How many values find_outliers screens (those in units with 3 or more)."""
-    return sum(len(vs) for vs in values.values() if len(vs) >= 3)
+    sizes = _grouped(values).sizes
+    return int(sizes[sizes >= 3].sum())
 
 
 def swap_candidates(plan: Plan, means: dict[str, float]) -> int:
@@ -155,32 +206,34 @@ def swap_candidates(plan: Plan, means: dict[str, float]) -> int:
     return (n * n - sum(c * c for c in counts.values())) // 2
 
 
-def find_outliers(values: dict[str, list[tuple[str, float]]], threshold: float) -> list[Outlier]:
+def find_outliers(values: dict[str, list[tuple[str, float]]] | Grouped, threshold: float) -> list[Outlier]:
     """The value of a unit farthest from the unit's other values, when it is beyond threshold on the pooled scale."""
-    sized = _by_size([[v for _, v in vs] for vs in values.values()])
+    g = _grouped(values)
+    sized = _sized(g)
     scale = _scale_of(sized)
     if scale <= 0:
         return []
-    maybe = _may_stand_out(sized, len(values), scale, threshold)
+    maybe = _may_stand_out(sized, len(g.units), scale, threshold)
     found = []
-    for k, (unit, vs) in enumerate(values.items()):
-        s = len(vs)
-        if s < 3 or not maybe[k]:
+    for k in np.flatnonzero(maybe).tolist():  # the few units that may: exactly, in plain floats
+        s = int(g.sizes[k])
+        if s < 3:
             continue
+        vs = g.unit_values(k)
         total = sum(v for _, v in vs)
         spread = scale * math.sqrt(1 + 1 / (s - 1))  # plain floats: numpy scalars cost a microsecond a value
         slot, v = max(vs, key=lambda sv: abs(sv[1] - (total - sv[1]) / (s - 1)))  # the first of equal scores
         others = (total - v) / (s - 1)
-        best: Outlier | None = Outlier(slot, unit, v, others, abs(v - others) / spread)
-        if best is not None and best.score > threshold:
+        best = Outlier(slot, g.units[k], v, others, abs(v - others) / spread)
+        if best.score > threshold:
             found.append(best)
     return found
 
 
-def _may_stand_out(sized: Sized, count: int, scale: float, threshold: float) -> list[bool]:
+def _may_stand_out(sized: Sized, count: int, scale: float, threshold: float) -> np.ndarray:
     """Per unit, whether its farthest value may score above threshold: the same arithmetic in numpy for all
     units of one size, with a margin, so only those few go through the exact per-unit code above."""
-    out = [True] * count
+    out = np.zeros(count, dtype=bool)
     for s, (which, m) in sized.items():
         if s < 3:
             continue
@@ -189,8 +242,7 @@ def _may_stand_out(sized: Sized, count: int, scale: float, threshold: float) -> 
             total = total + m[:, j]
         others = (total[:, None] - m) / (s - 1)
         score = np.abs(m - others).max(axis=1) / (scale * math.sqrt(1 + 1 / (s - 1)))
-        for k, high in zip(which, (score > threshold * (1 - 1e-9)).tolist(), strict=True):
-            out[k] = high
+        out[np.asarray(which, dtype=np.int64)] = score > threshold * (1 - 1e-9)
     return out
 
 

@@ -3,14 +3,17 @@
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import cached_property
 from typing import Any
+
+import numpy as np
 
 from layout.codes import CodeParts, compact, index_codes, parse_code, serial_width, subsample_width, suggest
 from layout.intake.columns import Columns
 from layout.intake.findings import Finding, Kind, Severity, finding, show_value
 from layout.intake.readers import ReturnedTable
 from layout.intake.values import close_to, excess_decimals, is_blank, parse
-from layout.plan import Plan, Slot
+from layout.plan import Plan, Slot, Unit
 
 
 @dataclass(slots=True)  # one per row or slot: slots make them smaller and quicker
@@ -68,10 +71,65 @@ class PlanIndex:
         self.reasons = {m.lower(): m for m in plan.spec.collection.missing_reasons}
         self.study = plan.spec.study.id
         self.lengths = code_lengths(plan)
+        self._planned_columns: dict[str, tuple[np.ndarray, np.ndarray]] = {}
+        self._planned_rows: dict[tuple[str, ...], Any] = {}
+
+    @cached_property
+    def round_number(self) -> dict[str, int]:
+        """Each round name's place in plan.rounds."""
+        return {r.name: k for k, r in enumerate(self.plan.rounds)}
+
+    @cached_property
+    def slot_number(self) -> dict[str, int]:
+        """Each slot code's place in plan.slots."""
+        return {s.code: k for k, s in enumerate(self.plan.slots)}
+
+    @cached_property
+    def unit_of_slot(self) -> np.ndarray:
+        """Each slot's unit, as its place in plan.units."""
+        place = {u.code: k for k, u in enumerate(self.plan.units)}
+        return np.array([place[s.unit] for s in self.plan.slots], dtype=np.int64)
+
+    @cached_property
+    def subsample_of_slot(self) -> np.ndarray:
+        """Each slot's subsample number (Python ints, to compare with cells as they are)."""
+        return np.array([s.subsample for s in self.plan.slots], dtype=object)
+
+    @cached_property
+    def subsample_text(self) -> np.ndarray:
+        return np.array([str(s.subsample) for s in self.plan.slots], dtype=object)
+
+    def planned_column(self, name: str) -> tuple[np.ndarray, np.ndarray]:
+        """A structure column's planned value per unit, as a workbook cell and as CSV text (see planned_cell)."""
+        if name not in self._planned_columns:
+            pairs = [planned_cell(u, name) for u in self.plan.units]
+            written = np.empty(len(pairs), dtype=object)
+            typed = np.empty(len(pairs), dtype=object)
+            written[:] = [w for w, _ in pairs]
+            typed[:] = [t for _, t in pairs]
+            self._planned_columns[name] = (written, typed)
+        return self._planned_columns[name]
+
+    def planned_rows(self, names: tuple[str, ...]) -> tuple[dict[str, Any], dict[str, Any], dict[str, Any]]:
+        """Per unit code: the (cell, text) pairs of these structure columns, the cells, and the texts."""
+        if names not in self._planned_rows:
+            planned = {u.code: tuple(planned_cell(u, name) for name in names) for u in self.plan.units}
+            written = {code: tuple(w for w, _ in p) for code, p in planned.items()}
+            typed = {code: tuple(t for _, t in p) for code, p in planned.items()}
+            self._planned_rows[names] = (planned, written, typed)
+        return self._planned_rows[names]
 
     def parse(self, text: str) -> CodeParts | None:
         """A typed code taken apart with this plan's study id and widths."""
         return parse_code(text, self.study, self.lengths)
+
+
+def planned_cell(unit: Unit, name: str) -> tuple[Any, Any]:
+    """The planned value of a structure column as a workbook cell (numbers read as floats) and as CSV text."""
+    value = unit.code if name == "unit" else getattr(unit, name)  # block, row, col, treatment
+    if isinstance(value, int):
+        return float(value), str(value)
+    return value, value
 
 
 def cell_text(cell: Any) -> str:

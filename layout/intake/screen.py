@@ -7,8 +7,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from layout.intake.findings import Finding, Kind, finding
-from layout.intake.merge import Key, Merged
+from layout.intake.returned import ROWS, Returned
 from layout.intake.robust import (
+    Grouped,
     Outlier,
     Swap,
     find_outliers,
@@ -22,7 +23,8 @@ from layout.intake.robust import (
 )
 from layout.plan import Plan
 
-Groups = dict[tuple[str, str], dict[str, list[tuple[str, float]]]]  # (round, response) → unit → (slot, value)
+# (round, response) → the values by unit: a Grouped, or unit → [(slot, value)]
+Groups = dict[tuple[str, str], Grouped | dict[str, list[tuple[str, float]]]]
 
 
 @dataclass
@@ -37,11 +39,12 @@ class Screened:
 
 def screen(plan: Plan, groups: Groups) -> Screened:
     """Outlying subsamples and possibly swapped units over every round and response, controlled per study."""
-    means_of = {key: {u: sum(v for _, v in vs) / len(vs) for u, vs in g.items()} for key, g in groups.items()}
-    n_values = sum(outlier_candidates(g) for g in groups.values())
+    grouped = {key: g if isinstance(g, Grouped) else Grouped.of(g) for key, g in groups.items()}
+    means_of = {key: g.means() for key, g in grouped.items()}
+    n_values = sum(outlier_candidates(g) for g in grouped.values())
     n_pairs = sum(swap_candidates(plan, m) for m in means_of.values())
     out = Screened()
-    for (rnd, response), g in groups.items():
+    for (rnd, response), g in grouped.items():
         out.outlier_threshold = outlier_threshold(n_values, scale_df(g))
         out.outliers += [(rnd, response, o) for o in find_outliers(g, out.outlier_threshold)]
         means = means_of[(rnd, response)]
@@ -59,21 +62,67 @@ def _treatment_means(plan: Plan, means: dict[str, float]) -> dict[str, float]:
     return {t: float(np.mean(v)) for t, v in by.items()}
 
 
-def groups_of(plan: Plan, merged: dict[Key, Merged]) -> Groups:
-    """The numeric values of every round and response, by unit; slots in conflict left out."""
+def groups_of(plan: Plan, merged: Returned) -> Groups:
+    """The numeric values of every round and response, by unit, in reading order; slots in conflict left out.
+
+    Built from arrays: the order is that of reading every row one by one (units in the order first read, each
+    unit's values in the order read; the groups in the order their first value was read).
+    """
     numeric = [r.name for r in plan.spec.response if r.kind in ("number", "integer")]
-    groups: Groups = {}
-    for (slot, rnd), m in merged.items():
-        if m.conflict:
-            continue
-        for name in numeric:
-            if name in m.values:
-                groups.setdefault((rnd, name), {}).setdefault(m.slot.unit, []).append((slot, float(m.values[name])))
-    return groups
+    seq, slot, rnd = [], [], []
+    values: dict[str, list[np.ndarray]] = {n: [] for n in numeric}
+    has: dict[str, list[np.ndarray]] = {n: [] for n in numeric}
+    for b in merged.blocks:
+        seq.append(merged.places[b.file] * ROWS + b.numbers)
+        slot.append(b.slots)
+        rnd.append(b.rounds)
+        for n in numeric:
+            values[n].append(b.values[n].astype(float))
+            has[n].append(b.has[n])
+    special = [(key, m) for key, m in merged.special.items() if not m.conflict]
+    if special:
+        seq.append(np.array([merged.first_seen(m) for _, m in special], dtype=np.int64))
+        slot.append(np.array([merged.idx.slot_number[k[0]] for k, _ in special], dtype=np.int64))
+        rnd.append(np.array([merged.idx.round_number[k[1]] for k, _ in special], dtype=np.int64))
+        for n in numeric:
+            values[n].append(np.array([float(m.values[n]) if n in m.values else 0.0 for _, m in special]))
+            has[n].append(np.array([n in m.values for _, m in special], dtype=bool))
+    if not seq:
+        return {}
+    order = np.argsort(np.concatenate(seq), kind="stable")
+    seq_all = np.concatenate(seq)[order]
+    slot_all = np.concatenate(slot)[order]
+    rnd_all = np.concatenate(rnd)[order]
+    unit_all = merged.idx.unit_of_slot[slot_all]
+    firsts: list[tuple[int, int, tuple[str, str], Grouped]] = []
+    for r, round_ in enumerate(plan.rounds):
+        in_round = rnd_all == r
+        for j, n in enumerate(numeric):
+            pick = np.flatnonzero(in_round & np.concatenate(has[n])[order])
+            if len(pick):
+                g = _grouped_of(plan, unit_all[pick], slot_all[pick], np.concatenate(values[n])[order][pick])
+                firsts.append((int(seq_all[pick[0]]), j, (round_.name, n), g))
+    return {key: g for _, _, key, g in sorted(firsts, key=lambda f: (f[0], f[1]))}
+
+
+def _grouped_of(plan: Plan, unit: np.ndarray, slot: np.ndarray, values: np.ndarray) -> Grouped:
+    """Values in reading order, gathered unit by unit (units in the order first read)."""
+    first = np.unique(unit, return_index=True)[1]  # each unit's first place, units ascending
+    units_read = unit[np.sort(first)]  # the units, in the order first read
+    rank = np.empty(len(plan.units), dtype=np.int64)
+    rank[units_read] = np.arange(len(units_read))
+    order = np.argsort(rank[unit], kind="stable")
+    codes = [s.code for s in plan.slots]
+    return Grouped(
+        [plan.units[u].code for u in units_read.tolist()],
+        [codes[k] for k in slot[order].tolist()],
+        values[order],
+        np.bincount(rank[unit], minlength=len(units_read)),
+    )
 
 
 def statistical_findings(
-    plan: Plan, merged: dict[Key, Merged]
+    plan: Plan, merged: Returned
 ) -> tuple[list[Finding], set[tuple[str, str, str]], set[tuple[str, str]]]:
     """outlier-subsample and possible-swap findings, with the (slot, round, response) and (unit, round) they mark."""
     headers = {r.name: r.header for r in plan.spec.response}
@@ -83,15 +132,15 @@ def statistical_findings(
     outliers: set[tuple[str, str, str]] = set()
     for rnd, response, o in got.outliers:
         outliers.add((o.slot, rnd, response))
-        e = merged[(o.slot, rnd)].anchor
+        file, row = merged.anchor((o.slot, rnd))
         found.append(
             finding(
                 Kind.OUTLIER_SUBSAMPLE,
                 f"{headers[response]} {o.value:g} in round {rnd} is far from the other {sub_name} of {o.unit} "
                 f"(their mean {o.others:.4g}; {o.score:.1f} SD of the {sub_name}-to-{sub_name} spread, "
                 f"flagged above {got.outlier_threshold:.1f})",
-                file=e.file,
-                row=e.row,
+                file=file,
+                row=row,
                 code=o.slot,
                 unit=o.unit,
                 column=headers[response],

@@ -15,14 +15,14 @@ from layout.intake.findings import Finding, Kind, Severity, finding
 from layout.intake.fix_apply import apply_keep_this
 from layout.intake.fixes import Applied, FixBook
 from layout.intake.gather import gather
-from layout.intake.merge import completeness, missing_slots
+from layout.intake.merge import completeness, missing_slots, slot_places
 from layout.intake.proposals import propose_fixes
 from layout.intake.readahead import ReadAhead
 from layout.intake.returned import Returned, merge_returns, unblock_shared
 from layout.intake.rows import PlanIndex
 from layout.intake.safety import DEFAULT_LIMITS, Limits
 from layout.intake.screen import statistical_findings
-from layout.intake.tidy import tidy_table
+from layout.intake.tidy import tidy_table, warm_tidy
 from layout.plan import Plan
 
 
@@ -65,6 +65,7 @@ def check_returns(
     say = progress or (lambda _: None)
     book = fixes or FixBook("")
     idx = PlanIndex(plan)
+    _prepare(plan, idx)
     got = gather(plan, paths, say, book, limits, ahead, idx)
     entries, blocks = unblock_shared(idx, got.entries, got.blocks, got.places)
     found = apply_keep_this(entries, list(got.findings), got.keep_this, book)
@@ -83,6 +84,14 @@ def check_returns(
     result = CheckResult(found, tidy, _summary(plan, found, merged, got.files), outliers, swaps, book.applied)
     result.proposals = propose_fixes(plan, result, merged.special, got.unmatched)
     return result
+
+
+def _prepare(plan: Plan, idx: PlanIndex) -> None:
+    """The plan's look-ups and its part of the tidy table, made while the first file is still being parsed
+    (calamine parses without the GIL, in its own thread)."""
+    idx.warm()
+    slot_places(plan)
+    warm_tidy(plan)
 
 
 def _columns_nowhere(plan: Plan, entries: list[Any], blocks: list[CleanBlock]) -> list[Finding]:

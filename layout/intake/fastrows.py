@@ -13,6 +13,7 @@ from __future__ import annotations
 import math
 import re
 from collections.abc import Callable
+from functools import cached_property
 from operator import itemgetter
 from typing import Any, Final
 
@@ -96,8 +97,7 @@ class FastRows:
         self.checked = checked
         self.structure = [cols.structure[name] for name in checked]
         self.subsample_at = cols.structure.get("subsample")
-        # each unit's structure cells as the entry workbook writes them
-        self.planned, self.as_written, self.as_typed = idx.planned_rows(tuple(checked))
+        self._idx = idx
         self.responses = []
         self.response_of = idx.responses
         for name, i in cols.responses.items():
@@ -108,6 +108,11 @@ class FastRows:
         self.formula_rows = {row for row, _ in table.formulas}
         self.structure_cells = _getter(self.structure)
 
+    @cached_property
+    def _planned(self) -> tuple[dict[str, Any], dict[str, Any], dict[str, Any]]:
+        """Each unit's structure cells as the entry workbook writes them: only when a row is looked at here."""
+        return self._idx.planned_rows(tuple(self.checked))
+
     def entry(self, number: int, cells: list[Any]) -> Entry | None:
         """The row's entry when it passes every quick test, else None."""
         if len(cells) < self.width or number in self.formula_rows:
@@ -116,8 +121,9 @@ class FastRows:
         if slot is None:
             return None
         got = self.structure_cells(cells)
-        if got != self.as_written[slot.unit] and got != self.as_typed[slot.unit]:
-            for cell, (want, typed) in zip(got, self.planned[slot.unit], strict=True):  # a CSV may mix the two
+        planned, as_written, as_typed = self._planned
+        if got != as_written[slot.unit] and got != as_typed[slot.unit]:
+            for cell, (want, typed) in zip(got, planned[slot.unit], strict=True):  # a CSV may mix the two
                 if cell != want and cell != typed:
                     return None
         if bool in set(map(type, got)):  # True == 1.0, but a ticked box is no block number

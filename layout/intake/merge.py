@@ -11,6 +11,7 @@ cells of every row are kept.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import lru_cache
 from typing import Any
 
 import numpy as np
@@ -220,6 +221,16 @@ def status(m: Merged | None, plan: Plan, required: list[str] | None = None) -> s
     return "ok"
 
 
+@lru_cache(maxsize=2)
+def slot_places(plan: Plan) -> tuple[np.ndarray, dict[str, int]]:
+    """Each slot's unit (its place in plan.units), and each slot code's place in plan.slots."""
+    unit_of = {u.code: k for k, u in enumerate(plan.units)}
+    return (
+        np.array([unit_of[s.unit] for s in plan.slots], dtype=np.int64),
+        {s.code: k for k, s in enumerate(plan.slots)},
+    )
+
+
 def missing_slots(plan: Plan, present: np.ndarray, cause: str | None = None) -> list[Finding]:
     """missing-unit when every slot of a unit is absent in a round, else missing-slot per absent slot.
 
@@ -228,9 +239,7 @@ def missing_slots(plan: Plan, present: np.ndarray, cause: str | None = None) -> 
     """
     found: list[Finding] = []
     slots = len(plan.slots)
-    unit_of = {u.code: k for k, u in enumerate(plan.units)}
-    unit_of_slot = np.array([unit_of[s.unit] for s in plan.slots], dtype=np.int64)
-    place_of_slot = {s.code: k for k, s in enumerate(plan.slots)}
+    unit_of_slot, place_of_slot = slot_places(plan)
     for r, rnd in enumerate(plan.rounds):
         here = present[r * slots : (r + 1) * slots]
         lacking = np.bincount(unit_of_slot[~here], minlength=len(plan.units))

@@ -119,6 +119,13 @@ class PlanIndex:
             self._planned_rows[names] = (planned, written, typed)
         return self._planned_rows[names]
 
+    def warm(self) -> None:
+        """Build now what a check of returns in columns looks up, while the returns are still being read."""
+        for name in ("slot_number", "unit_of_slot", "subsample_of_slot", "subsample_text", "round_number"):
+            getattr(self, name)
+        for name in ("unit", "block", "row", "col", "treatment"):
+            self.planned_column(name)
+
     def parse(self, text: str) -> CodeParts | None:
         """A typed code taken apart with this plan's study id and widths."""
         return parse_code(text, self.study, self.lengths)

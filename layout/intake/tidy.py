@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import csv
 import io
+from functools import lru_cache
 from typing import Any
 
 import numpy as np
@@ -60,24 +61,9 @@ def tidy_table(plan: Plan, merged: Returned, unmatched: list[Unmatched]) -> pd.D
         "fix",
     ]
     # column by column, in arrays over round × slots + slot: a dict or an append per cell costs seconds
-    pairs = [(u, s) for u in plan.units for s in plan.slots_of[u.code]]
-    rounds = len(plan.rounds)
-    n_slots = len(plan.slots)
-    slot_place = merged.idx.slot_number
-    order = np.array([r * n_slots + slot_place[s.code] for r in range(rounds) for _, s in pairs], dtype=np.int64)
-    data: dict[str, Any] = {
-        "code": [s.code for _, s in pairs] * rounds,
-        "unit": [u.code for u, _ in pairs] * rounds,
-        "serial": [u.serial for u, _ in pairs] * rounds,
-        "treatment": [u.treatment for u, _ in pairs] * rounds,
-        **{f: [u.levels.get(f) for u, _ in pairs] * rounds for f in factors},
-        "block": [u.block for u, _ in pairs] * rounds,
-        "row": [u.row for u, _ in pairs] * rounds,
-        "col": [u.col for u, _ in pairs] * rounds,
-        "whole_plot": [u.whole_plot for u, _ in pairs] * rounds,
-        "subsample": [s.subsample for _, s in pairs] * rounds,
-        "round": [rnd.name for rnd in plan.rounds for _ in pairs],
-    }
+    n_slots, rounds = len(plan.slots), len(plan.rounds)
+    order, plan_columns = _plan_part(plan)
+    data: dict[str, Any] = {}
     size = n_slots * rounds
     at = {key: merged.place_of(key) for key in special}
     required = [r.name for r in plan.spec.response if r.required]
@@ -108,19 +94,24 @@ def tidy_table(plan: Plan, merged: Returned, unmatched: list[Unmatched]) -> pd.D
     data["source_file"] = source_file[order].tolist()
     data["source_row"] = pd.arrays.IntegerArray(source_row[order], ~has_row[order])
     data["fix"] = _special_column(at, special, _fix, size, None)[order].tolist()
-    if unmatched:  # rare: every column as a list, the unplaced rows after the planned ones
-        data = {c: _as_list(v) for c, v in data.items()}
-        for x in unmatched:
-            row = {
-                "code": x.code or None,
-                "status": "unmatched",
-                "note": f"{x.why}: " + "; ".join(f"{k}={v}" for k, v in x.cells.items()),
-                "source_file": x.file,
-                "source_row": x.row,
-                "fix": " ".join(x.fixes) or None,
-            }
-            for c in columns:
-                data[c].append(row.get(c))
+    if not unmatched:  # the plan's columns made once per plan, the rest added beside them
+        frame = _plan_frame(plan).copy(deep=False)
+        for name, column in data.items():
+            frame[name] = column
+        return frame
+    # rare: every column as a list, the unplaced rows after the planned ones
+    data = {**{c: list(v) for c, v in plan_columns.items()}, **{c: _as_list(v) for c, v in data.items()}}
+    for x in unmatched:
+        row = {
+            "code": x.code or None,
+            "status": "unmatched",
+            "note": f"{x.why}: " + "; ".join(f"{k}={v}" for k, v in x.cells.items()),
+            "source_file": x.file,
+            "source_row": x.row,
+            "fix": " ".join(x.fixes) or None,
+        }
+        for c in columns:
+            data[c].append(row.get(c))
     frame = pd.DataFrame(data, columns=columns)
     for col in ("serial", "block", "row", "col", "whole_plot", "subsample", "source_row"):
         frame[col] = frame[col].astype("Int64")
@@ -130,6 +121,43 @@ def tidy_table(plan: Plan, merged: Returned, unmatched: list[Unmatched]) -> pd.D
         elif r.kind == "number":
             frame[r.name] = frame[r.name].astype("Float64")
     return frame
+
+
+@lru_cache(maxsize=2)
+def _plan_part(plan: Plan) -> tuple[np.ndarray, dict[str, list[Any]]]:
+    """The tidy rows' places (round × slots + slot) and the plan's columns, units in plan order."""
+    pairs = [(u, s) for u in plan.units for s in plan.slots_of[u.code]]
+    rounds = len(plan.rounds)
+    n_slots = len(plan.slots)
+    slot_place = {s.code: k for k, s in enumerate(plan.slots)}
+    order = np.array([r * n_slots + slot_place[s.code] for r in range(rounds) for _, s in pairs], dtype=np.int64)
+    columns = {
+        "code": [s.code for _, s in pairs] * rounds,
+        "unit": [u.code for u, _ in pairs] * rounds,
+        "serial": [u.serial for u, _ in pairs] * rounds,
+        "treatment": [u.treatment for u, _ in pairs] * rounds,
+        **{f: [u.levels.get(f) for u, _ in pairs] * rounds for f in factor_columns(plan)},
+        "block": [u.block for u, _ in pairs] * rounds,
+        "row": [u.row for u, _ in pairs] * rounds,
+        "col": [u.col for u, _ in pairs] * rounds,
+        "whole_plot": [u.whole_plot for u, _ in pairs] * rounds,
+        "subsample": [s.subsample for _, s in pairs] * rounds,
+        "round": [rnd.name for rnd in plan.rounds for _ in pairs],
+    }
+    return order, columns
+
+
+@lru_cache(maxsize=2)
+def _plan_frame(plan: Plan) -> pd.DataFrame:
+    frame = pd.DataFrame(_plan_part(plan)[1])
+    for col in ("serial", "block", "row", "col", "whole_plot", "subsample"):
+        frame[col] = frame[col].astype("Int64")
+    return frame
+
+
+def warm_tidy(plan: Plan) -> None:
+    """Make the plan's part of the tidy table now, while the returns are still being read."""
+    _plan_frame(plan)
 
 
 def _source_file(m: Merged) -> str | None:

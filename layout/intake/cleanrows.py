@@ -49,10 +49,11 @@ class CleanBlock:
         return e
 
 
-def _column(cells: Sequence[list[Any]], i: int, ragged: bool) -> list[Any]:
-    if ragged:
-        return [c[i] if len(c) > i else None for c in cells]
-    return [c[i] for c in cells]
+def _columns(cells: Sequence[list[Any]], width: int, lengths: set[int]) -> list[Sequence[Any]]:
+    """The table's first `width` columns; a short row's missing cells are None (such a row is not clean)."""
+    if len(lengths) == 1:
+        return list(zip(*cells, strict=True))  # one transposition in C
+    return [[c[i] if len(c) > i else None for c in cells] for i in range(width)]
 
 
 def _read_numbers(column: list[Any], fast: FastRows, name: str) -> tuple[np.ndarray, np.ndarray] | None:
@@ -110,13 +111,14 @@ def take_clean(
     bad_rows = fast.formula_rows | set(skip)
     if bad_rows:
         ok &= np.fromiter((n not in bad_rows for n in numbers), bool, len(numbers))
+    columns = _columns(cells, width, lengths)
     slot_at = idx.slot_number
-    slot = np.fromiter((slot_at.get(c, -1) for c in _column(cells, fast.code_at, ragged)), np.int64, len(cells))
+    slot = np.fromiter(map(slot_at.get, columns[fast.code_at], repeat(-1)), np.int64, len(cells))
     ok &= slot >= 0
     slot = np.where(ok, slot, 0)
     unit = idx.unit_of_slot[slot]
     for name, i in zip(fast.checked, fast.structure, strict=True):
-        column = _column(cells, i, ragged)
+        column = columns[i]
         written, typed = idx.planned_column(name)
         got = np.array(column, dtype=object)
         with np.errstate(all="ignore"):
@@ -124,7 +126,7 @@ def take_clean(
         if bool in set(map(type, column)):  # True == 1.0, but a ticked box is no block number
             ok &= np.fromiter((type(c) is not bool for c in column), bool, len(column))
     if fast.subsample_at is not None:
-        column = _column(cells, fast.subsample_at, ragged)
+        column = columns[fast.subsample_at]
         sub = idx.subsample_of_slot[slot]
         got = np.array(column, dtype=object)
         ok &= (got == sub) | (got == idx.subsample_text[slot])
@@ -136,23 +138,23 @@ def take_clean(
         if fast.only_round is None:
             ok[:] = False
     else:
-        column = _column(cells, fast.round_at, ragged)
-        rnd = np.fromiter((round_no.get(c, -1) if type(c) is str else -1 for c in column), np.int64, len(cells))
+        column = columns[fast.round_at]
+        rnd = np.fromiter(map(round_no.get, column, repeat(-1)), np.int64, len(cells))
         ok &= rnd >= 0
     for i in fast.quiet_at:
-        column = _column(cells, i, ragged)
+        column = columns[i]
         if not set(column) <= _QUIET:
             ok &= np.fromiter((c is None or c == "" for c in column), bool, len(column))
     values: dict[str, Any] = {}
     has: dict[str, np.ndarray] = {}
     for name, i, read in fast.responses:
         r = fast.response_of[name]
-        column = _column(cells, i, ragged)
+        column = columns[i]
         numeric = _read_numbers(column, fast, name) if r.kind in ("number", "integer") else None
         values[name], has[name] = numeric if numeric is not None else _read_cells(column, read)
         if r.required:
             ok &= has[name]
-        else:  # an optional response may be left blank in a clean row; what is typed must read cleanly
+        elif not has[name].all():  # an optional response may be left blank in a clean row; typed must read cleanly
             ok &= has[name] | np.fromiter((c is None or c == "" for c in column), bool, len(column))
     if not ok.any():
         return None, table

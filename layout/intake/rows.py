@@ -62,17 +62,29 @@ class PlanIndex:
 
     def __init__(self, plan: Plan) -> None:
         self.plan = plan
-        self.slots = index_codes(s.code for s in plan.slots)
         self.slot_by_code = {s.code: s for s in plan.slots}
-        self.units = index_codes(u.code for u in plan.units)
         self.rounds = {r.name.lower(): r.name for r in plan.rounds}
-        self.by_unit_sub = {(s.unit, s.subsample): s for s in plan.slots}
         self.responses = {r.name: r for r in plan.spec.response}
         self.reasons = {m.lower(): m for m in plan.spec.collection.missing_reasons}
         self.study = plan.spec.study.id
         self.lengths = code_lengths(plan)
         self._planned_columns: dict[str, tuple[np.ndarray, np.ndarray]] = {}
         self._planned_rows: dict[tuple[str, ...], Any] = {}
+
+    # the indexes of codes as people type them are needed only for a row whose code is not exact: made then
+    @cached_property
+    def slots(self) -> dict[str, str]:
+        """Slot codes by their compact form (no separators, upper case)."""
+        return index_codes(s.code for s in self.plan.slots)
+
+    @cached_property
+    def units(self) -> dict[str, str]:
+        """Unit codes by their compact form."""
+        return index_codes(u.code for u in self.plan.units)
+
+    @cached_property
+    def by_unit_sub(self) -> dict[tuple[str, int], Slot]:
+        return {(s.unit, s.subsample): s for s in self.plan.slots}
 
     @cached_property
     def round_number(self) -> dict[str, int]:
@@ -102,11 +114,15 @@ class PlanIndex:
     def planned_column(self, name: str) -> tuple[np.ndarray, np.ndarray]:
         """A structure column's planned value per unit, as a workbook cell and as CSV text (see planned_cell)."""
         if name not in self._planned_columns:
-            pairs = [planned_cell(u, name) for u in self.plan.units]
-            written = np.empty(len(pairs), dtype=object)
-            typed = np.empty(len(pairs), dtype=object)
-            written[:] = [w for w, _ in pairs]
-            typed[:] = [t for _, t in pairs]
+            units = self.plan.units
+            planned = [u.code for u in units] if name == "unit" else [getattr(u, name) for u in units]
+            written = np.empty(len(planned), dtype=object)
+            typed = np.empty(len(planned), dtype=object)
+            if any(type(v) is int for v in planned):  # as planned_cell: a number is a float cell or its text
+                written[:] = [float(v) if type(v) is int else v for v in planned]
+                typed[:] = [str(v) if type(v) is int else v for v in planned]
+            else:
+                written[:] = typed[:] = planned
             self._planned_columns[name] = (written, typed)
         return self._planned_columns[name]
 

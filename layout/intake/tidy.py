@@ -129,8 +129,11 @@ def _plan_part(plan: Plan) -> tuple[np.ndarray, dict[str, list[Any]]]:
     pairs = [(u, s) for u in plan.units for s in plan.slots_of[u.code]]
     rounds = len(plan.rounds)
     n_slots = len(plan.slots)
-    slot_place = {s.code: k for k, s in enumerate(plan.slots)}
-    order = np.array([r * n_slots + slot_place[s.code] for r in range(rounds) for _, s in pairs], dtype=np.int64)
+    if all(a is b for (_, a), b in zip(pairs, plan.slots, strict=True)):  # plans list slots unit by unit
+        order = np.arange(n_slots * rounds, dtype=np.int64)
+    else:
+        slot_place = {s.code: k for k, s in enumerate(plan.slots)}
+        order = np.array([r * n_slots + slot_place[s.code] for r in range(rounds) for _, s in pairs], dtype=np.int64)
     columns = {
         "code": [s.code for _, s in pairs] * rounds,
         "unit": [u.code for u, _ in pairs] * rounds,

@@ -15,7 +15,7 @@ from layout.intake.findings import Finding, Kind, Severity, finding
 from layout.intake.fix_apply import apply_keep_this
 from layout.intake.fixes import Applied, FixBook
 from layout.intake.gather import gather
-from layout.intake.merge import completeness, missing_slots, slot_places
+from layout.intake.merge import completeness, missing_slots
 from layout.intake.proposals import propose_fixes
 from layout.intake.readahead import ReadAhead
 from layout.intake.returned import Returned, merge_returns, unblock_shared
@@ -75,7 +75,7 @@ def check_returns(
     found += merge_findings
     found += completeness(plan, merged.special)
     cause = "; ".join(got.unusable) or None
-    missing = missing_slots(plan, merged.present(), cause)
+    missing = missing_slots(plan, merged.present(), cause, (idx.unit_of_slot, idx.slot_number))
     found = _count_at_causes(found, got.unusable, missing) + missing
     say("looking for outlying subsamples and swapped units")
     stats, outliers, swaps = statistical_findings(plan, merged)
@@ -90,7 +90,6 @@ def _prepare(plan: Plan, idx: PlanIndex) -> None:
     """The plan's look-ups and its part of the tidy table, made while the first file is still being parsed
     (calamine parses without the GIL, in its own thread)."""
     idx.warm()
-    slot_places(plan)
     warm_tidy(plan)
 
 

@@ -122,14 +122,20 @@ def take_clean(
         written, typed = idx.planned_column(name)
         got = np.array(column, dtype=object)
         with np.errstate(all="ignore"):
-            ok &= (got == written[unit]) | (got == typed[unit])
+            same = got == written[unit]
+            if not same[ok].all():  # a CSV: the planned text, or a mix of the two
+                same |= got == typed[unit]
+        ok &= same
         if bool in set(map(type, column)):  # True == 1.0, but a ticked box is no block number
             ok &= np.fromiter((type(c) is not bool for c in column), bool, len(column))
     if fast.subsample_at is not None:
         column = columns[fast.subsample_at]
         sub = idx.subsample_of_slot[slot]
         got = np.array(column, dtype=object)
-        ok &= (got == sub) | (got == idx.subsample_text[slot])
+        same = got == sub
+        if not same[ok].all():
+            same |= got == idx.subsample_text[slot]
+        ok &= same
         if bool in set(map(type, column)):
             ok &= np.fromiter((type(c) is not bool for c in column), bool, len(column))
     round_no = {r.name: k for k, r in enumerate(plan.rounds)}

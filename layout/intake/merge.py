@@ -231,15 +231,18 @@ def slot_places(plan: Plan) -> tuple[np.ndarray, dict[str, int]]:
     )
 
 
-def missing_slots(plan: Plan, present: np.ndarray, cause: str | None = None) -> list[Finding]:
+def missing_slots(
+    plan: Plan, present: np.ndarray, cause: str | None = None, places: tuple[np.ndarray, dict[str, int]] | None = None
+) -> list[Finding]:
     """missing-unit when every slot of a unit is absent in a round, else missing-slot per absent slot.
 
     present: per round × slots + slot, whether some row names that slot in that round. cause names the
-    unusable file these may follow from, so reports can group them under it.
+    unusable file these may follow from, so reports can group them under it. places: slot_places(plan), when
+    the caller has them.
     """
     found: list[Finding] = []
     slots = len(plan.slots)
-    unit_of_slot, place_of_slot = slot_places(plan)
+    unit_of_slot, place_of_slot = places or slot_places(plan)
     for r, rnd in enumerate(plan.rounds):
         here = present[r * slots : (r + 1) * slots]
         lacking = np.bincount(unit_of_slot[~here], minlength=len(plan.units))

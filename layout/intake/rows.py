@@ -137,7 +137,7 @@ class PlanIndex:
 
     def warm(self) -> None:
         """Build now what a check of returns in columns looks up, while the returns are still being read."""
-        for name in ("slot_number", "unit_of_slot", "subsample_of_slot", "subsample_text", "round_number"):
+        for name in ("slot_number", "unit_of_slot", "subsample_of_slot", "round_number"):
             getattr(self, name)
         for name in ("unit", "block", "row", "col", "treatment"):
             self.planned_column(name)

@@ -209,13 +209,14 @@ def _check(args: argparse.Namespace) -> int:
     from layout.intake.check import check_returns
     from layout.intake.fixes import read_fixes
     from layout.intake.readahead import ReadAhead
-    from layout.intake.report import REPORT_FILES, write_report
+    from layout.intake.report import REPORT_FILES, warm_report, write_report
 
     folder = Path(args.output) if args.output else Path(args.plan).parent / "checked"
     for name in REPORT_FILES:  # refused now, not after a check that may take a minute
         refuse_existing(folder / name, args.force)
     ahead = ReadAhead(args.returned)  # the first workbook is parsed in a thread while the plan loads
     plan = load_plan(args.plan)
+    warm_report()
     for path in args.returned:
         if not Path(path).exists():
             raise UsageError(f"{path}: no such file; name the returned .xlsx and .csv files to check")

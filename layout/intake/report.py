@@ -168,6 +168,11 @@ def _status_counts(status: dict[tuple[str, str], str], plan: Plan) -> dict[str, 
     return out
 
 
+def warm_report() -> None:
+    """Compile the report's template now (while a returned workbook is still being parsed), not after the check."""
+    template_env().get_template("report.html")
+
+
 def report_html(plan: Plan, result: CheckResult, unblind: bool = False) -> str:
     """The human report: summary, findings, completeness map and strip plots (summarised for large studies)."""
     drawn = len(plan.units) <= MAX_MAP_UNITS

@@ -50,6 +50,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
+from functools import lru_cache
 from itertools import combinations
 from typing import Final
 
@@ -180,14 +181,34 @@ def swap_threshold(pairs: int, df: float = np.inf, leverage: float = 0.0, alpha:
 
 def fit_size(plan: Plan, means: dict[str, float]) -> tuple[int, float]:
     """Residual df of the additive fit of unit means without a pair, and the mean leverage of a prediction."""
-    units = [u for u in plan.units if u.code in means]
+    design = _design(plan, tuple(u.code for u in plan.units if u.code in means))
+    if design is None:
+        return 0, 0.0
+    n = len(design.units) - 2
+    return n - design.rank, design.rank / max(1, n)
+
+
+@dataclass(frozen=True)
+class _Design:
+    """The additive fit's design for a set of units: the same for every response and round with those units."""
+
+    units: list[Unit]
+    treatments: list[str]
+    x: np.ndarray
+    first: int  # where the treatment columns start
+    rank: int
+    inv: np.ndarray  # pinv(XᵀX)
+
+
+@lru_cache(maxsize=8)
+def _design(plan: Plan, codes: tuple[str, ...]) -> _Design | None:
+    """The design of these units (in plan order), or None when they have fewer than two treatments."""
+    units = [plan.unit_by_code[c] for c in codes]
     treatments = sorted({u.treatment for u in units}, key=list(plan.spec.treatments).index)
     if len(treatments) < 2:
-        return 0, 0.0
-    x, _ = _design_matrix(plan, units, treatments)
-    rank = int(np.linalg.matrix_rank(x))
-    n = len(units) - 2
-    return n - rank, rank / max(1, n)
+        return None
+    x, first = _design_matrix(plan, units, treatments)
+    return _Design(units, treatments, x, first, int(np.linalg.matrix_rank(x)), np.linalg.pinv(x.T @ x))
 
 
 def outlier_candidates(values: dict[str, list[tuple[str, float]]] | Grouped) -> int:
@@ -264,13 +285,12 @@ def _design_matrix(plan: Plan, units: list[Unit], treatments: list[str]) -> tupl
 
 def find_swaps(plan: Plan, means: dict[str, float], threshold: float) -> list[Swap]:
     """Pairs of units in different treatments whose data fit each other's treatment far better."""
-    units = [u for u in plan.units if u.code in means]
-    treatments = sorted({u.treatment for u in units}, key=list(plan.spec.treatments).index)
-    if len(treatments) < 2:
+    design = _design(plan, tuple(u.code for u in plan.units if u.code in means))
+    if design is None:
         return []
+    units, treatments, first = design.units, design.treatments, design.first
     y = np.array([means[u.code] for u in units])
-    x, first = _design_matrix(plan, units, treatments)
-    fit = _Fit(x, y)
+    fit = _Fit(design.x, y, design.inv, design.rank)
     if len(units) - fit.rank < 3 or not np.any(np.abs(fit.resid) > 1e-12):
         return []
     order = np.argsort(-np.abs(fit.resid))
@@ -302,10 +322,10 @@ class _Fit:
     the full fit's residuals; this equals refitting without the pair, at a fraction of the cost.
     """
 
-    def __init__(self, x: np.ndarray, y: np.ndarray) -> None:
+    def __init__(self, x: np.ndarray, y: np.ndarray, inv: np.ndarray | None = None, rank: int | None = None) -> None:
         self.x, self.y = x, y
-        self.inv = np.linalg.pinv(x.T @ x)
-        self.rank = int(np.linalg.matrix_rank(x))
+        self.inv = np.linalg.pinv(x.T @ x) if inv is None else inv
+        self.rank = int(np.linalg.matrix_rank(x)) if rank is None else rank
         self.beta = self.inv @ (x.T @ y)
         self.resid = y - x @ self.beta
         self.rss = float(self.resid @ self.resid)
@@ -314,10 +334,11 @@ class _Fit:
     def without(self, i: int, j: int) -> tuple[np.ndarray, float] | None:
         """Coefficients and residual variance of the fit without units i and j, or None when not estimable."""
         xs = self.x[[i, j]]
-        m = np.eye(2) - xs @ self.inv @ xs.T
-        if abs(np.linalg.det(m)) < 1e-9:
+        (a, b), (c, d) = (np.eye(2) - xs @ self.inv @ xs.T).tolist()
+        det = a * d - b * c  # a 2 × 2 block: its determinant and inverse written out, not a LAPACK call each
+        if abs(det) < 1e-9:
             return None  # without the pair some effect cannot be estimated
-        m_inv = np.linalg.inv(m)
+        m_inv = np.array([[d, -b], [-c, a]]) / det
         es = self.resid[[i, j]]
         beta = self.beta - self.inv @ xs.T @ (m_inv @ es)
         df = len(self.y) - 2 - self.rank

@@ -8,7 +8,6 @@ round × slots + slot, so the two kinds meet in plain arrays.
 
 from __future__ import annotations
 
-from collections.abc import Iterator
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -66,27 +65,6 @@ class Returned:
             if len(hit):
                 return b.file, int(b.numbers[hit[0]])
         raise KeyError(key)
-
-    def in_order(self) -> Iterator[tuple[Key, Merged | tuple[CleanBlock, int]]]:
-        """Every slot-round named, in the order its first row was read (files in order, rows down each file),
-        as the merging of every row one by one would give them: a Merged, or a clean block and its row."""
-        seq: list[np.ndarray] = []
-        what: list[tuple[int, int]] = []  # (block number or -1, row in block or special number)
-        for k, b in enumerate(self.blocks):
-            seq.append(self.places[b.file] * ROWS + b.numbers)
-            what += [(k, i) for i in range(len(b))]
-        special = list(self.special.items())
-        seq.append(np.array([self.first_seen(m) for _, m in special], dtype=np.int64))
-        what += [(-1, i) for i in range(len(special))]
-        order = np.argsort(np.concatenate(seq), kind="stable")
-        plan = self.plan
-        for j in order.tolist():
-            k, i = what[j]
-            if k < 0:
-                yield special[i]
-            else:
-                b = self.blocks[k]
-                yield (plan.slots[b.slots[i]].code, plan.rounds[b.rounds[i]].name), (b, i)
 
     def first_seen(self, m: Merged) -> int:
         """The place in the returns of the slot-round's first row: file place × ROWS + row."""

@@ -193,6 +193,46 @@ def test_random_cells_in_clean_rows(plan: Plan, filled: Path, data: st.DataObjec
     assert check_rows(odd, cols, idx, quick=True) == check_rows(odd, cols, idx, quick=False)
 
 
+@settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(data=st.data(), decimal_comma=st.booleans())
+def test_random_cells_in_clean_rows_in_columns(
+    plan: Plan, filled: Path, data: st.DataObject, decimal_comma: bool
+) -> None:
+    """The same odd cells through take_clean: the rows it keeps in columns are exactly those FastRows takes with
+    every required value filled, their arrays hold the Entry's values, and with the rest checked row by row the
+    entries, unplaced rows and findings are those of the per-row path."""
+    from layout.intake.cleanrows import take_clean
+
+    table = read_returned(filled)
+    body = [(n, list(cells)) for n, cells in table.rows[:8]]
+    for _ in range(data.draw(st.integers(0, 6))):
+        n = data.draw(st.integers(0, len(body) - 1))
+        column = data.draw(st.integers(0, len(table.headers) - 1))
+        codes = [plan.slots[0].code, plan.slots[1].code, plan.units[0].code]
+        body[n][1][column] = data.draw(st.one_of(ODD_CELLS, st.sampled_from(codes)))
+    odd = ReturnedTable(table.file, table.headers, table.header_row, body, decimal_comma=decimal_comma)
+    odd.formulas = {(body[0][0], 8)} if data.draw(st.booleans()) else set()
+    cols, _ = map_columns(odd, plan)
+    idx = PlanIndex(plan)
+    block, rest = take_clean(odd, cols, idx)
+    taken = [block.entry(k) for k in range(len(block))] if block else []  # each must be one FastRows takes
+    required = [r.name for r in plan.spec.response if r.required]
+    assert all(all(e.raw[n] for n in required) for e in taken)
+    fast = fastrows.FastRows(odd, cols, idx)
+    for number, cells in rest.rows:  # what was left is not a clean row with every required value
+        e = fast.entry(number, cells)
+        assert e is None or not all(e.raw[n] for n in required)
+    for k, e in enumerate(taken):
+        assert plan.slots[block.slots[k]] == e.slot and plan.rounds[block.rounds[k]].name == e.round
+        for name in block.values:
+            assert bool(block.has[name][k]) == (name in e.values)
+            if name in e.values:
+                assert block.values[name][k] == e.values[name]
+    entries, unmatched, found = check_rows(rest, cols, idx, quick=False)
+    slow = check_rows(odd, cols, idx, quick=False)
+    assert (sorted([*entries, *taken], key=lambda e: e.row), unmatched, found) == slow
+
+
 def test_the_plan_sheet_head_is_read_as_calamine_reads_it(filled: Path, soffice: str, tmp_path: Path) -> None:
     """The first rows of the hidden plan sheet, read from its XML alone, equal calamine's whole read
     (python-calamine as the reference reader); a LibreOffice re-save (shared strings) is left to calamine."""

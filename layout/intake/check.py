@@ -75,7 +75,7 @@ def check_returns(
     found += merge_findings
     found += completeness(plan, merged.special)
     cause = "; ".join(got.unusable) or None
-    missing = missing_slots(plan, merged.present(), cause, (idx.unit_of_slot, idx.slot_number))
+    missing = missing_slots(idx, merged.present(), cause)
     found = _count_at_causes(found, got.unusable, missing) + missing
     say("looking for outlying subsamples and swapped units")
     stats, outliers, swaps = statistical_findings(plan, merged)

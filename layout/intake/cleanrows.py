@@ -1,9 +1,9 @@
-"""Clean rows in columns: the rows of a return that fill every response and need no finding, held as arrays.
+"""Clean rows in columns: the rows of a return that fill every required response and need no finding, as arrays.
 
 Nearly every row of a large return is clean, and for those an Entry per row (and a Merged per
 slot after it) only costs time. take_clean tests a whole table column by column with the same
 tests as layout.intake.fastrows (the rows it takes are exactly the rows FastRows.entry accepts
-with every response filled), and keeps those rows as arrays in a CleanBlock. Every other row
+with every required response filled), and keeps those rows as arrays in a CleanBlock. Every other row
 stays in the table for layout.intake.rows, as before. A clean row that turns out to share its
 slot and round with another row is turned back into the Entry FastRows makes (CleanBlock.entry),
 so merging sees it as it always did (tests/test_fast_path.py).

@@ -11,13 +11,12 @@ cells of every row are kept.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from functools import lru_cache
 from typing import Any
 
 import numpy as np
 
 from layout.intake.findings import Finding, Kind, finding, show_value
-from layout.intake.rows import Entry
+from layout.intake.rows import Entry, PlanIndex
 from layout.plan import Plan, Slot
 
 Key = tuple[str, str]  # (slot code, round)
@@ -221,28 +220,16 @@ def status(m: Merged | None, plan: Plan, required: list[str] | None = None) -> s
     return "ok"
 
 
-@lru_cache(maxsize=2)
-def slot_places(plan: Plan) -> tuple[np.ndarray, dict[str, int]]:
-    """Each slot's unit (its place in plan.units), and each slot code's place in plan.slots."""
-    unit_of = {u.code: k for k, u in enumerate(plan.units)}
-    return (
-        np.array([unit_of[s.unit] for s in plan.slots], dtype=np.int64),
-        {s.code: k for k, s in enumerate(plan.slots)},
-    )
-
-
-def missing_slots(
-    plan: Plan, present: np.ndarray, cause: str | None = None, places: tuple[np.ndarray, dict[str, int]] | None = None
-) -> list[Finding]:
+def missing_slots(idx: PlanIndex, present: np.ndarray, cause: str | None = None) -> list[Finding]:
     """missing-unit when every slot of a unit is absent in a round, else missing-slot per absent slot.
 
     present: per round × slots + slot, whether some row names that slot in that round. cause names the
-    unusable file these may follow from, so reports can group them under it. places: slot_places(plan), when
-    the caller has them.
+    unusable file these may follow from, so reports can group them under it.
     """
+    plan = idx.plan
     found: list[Finding] = []
     slots = len(plan.slots)
-    unit_of_slot, place_of_slot = places or slot_places(plan)
+    unit_of_slot, place_of_slot = idx.unit_of_slot, idx.slot_number
     for r, rnd in enumerate(plan.rounds):
         here = present[r * slots : (r + 1) * slots]
         lacking = np.bincount(unit_of_slot[~here], minlength=len(plan.units))

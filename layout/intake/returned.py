@@ -9,6 +9,7 @@ round × slots + slot, so the two kinds meet in plain arrays.
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from functools import cached_property
 
 import numpy as np
 
@@ -59,12 +60,19 @@ class Returned:
         m = self.special.get(key)
         if m is not None:
             return m.anchor.file, m.anchor.row
-        place = self.place_of(key)
-        for b in self.blocks:
-            hit = np.flatnonzero(self.clean_places(b) == place)
-            if len(hit):
-                return b.file, int(b.numbers[hit[0]])
-        raise KeyError(key)
+        block, row = self._clean_rows[self.place_of(key)]
+        if block < 0:
+            raise KeyError(key)
+        return self.blocks[block].file, int(self.blocks[block].numbers[row])
+
+    @cached_property
+    def _clean_rows(self) -> np.ndarray:
+        """Per place: (block, row in it) of its clean row, or (-1, -1)."""
+        out = np.full((len(self.plan.slots) * len(self.plan.rounds), 2), -1, dtype=np.int64)
+        for k, b in enumerate(self.blocks):
+            at = self.clean_places(b)
+            out[at, 0], out[at, 1] = k, np.arange(len(b))
+        return out
 
     def first_seen(self, m: Merged) -> int:
         """The place in the returns of the slot-round's first row: file place × ROWS + row."""

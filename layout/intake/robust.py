@@ -48,7 +48,6 @@ subsample errors; unit means with experimental-error SD 1):
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
 from dataclasses import dataclass
 from functools import lru_cache
 from itertools import combinations
@@ -121,24 +120,11 @@ def _grouped(values: dict[str, list[tuple[str, float]]] | Grouped) -> Grouped:
     return values if isinstance(values, Grouped) else Grouped.of(values)
 
 
-def pooled_subsample_scale(groups: Sequence[Sequence[float]]) -> float:
-    """Robust σ of subsamples within units from all within-unit pairwise differences."""
-    return _scale_of(_by_size(groups))
-
-
 Sized = dict[int, tuple[list[int], np.ndarray]]  # group size → (the groups' places, their units × values matrix)
 
 
-def _by_size(groups: Sequence[Sequence[float]]) -> Sized:
-    """The groups as one matrix per group size, with where each row came from."""
-    places: dict[int, list[int]] = {}
-    for k, g in enumerate(groups):
-        places.setdefault(len(g), []).append(k)
-    return {n: (ks, np.array([groups[k] for k in ks], dtype=float).reshape(len(ks), n)) for n, ks in places.items()}
-
-
 def _sized(g: Grouped) -> Sized:
-    """_by_size of a Grouped, taken from its arrays."""
+    """The units' values as one matrix per number of values, with the units' places."""
     starts = g.starts
     out: Sized = {}
     for n in np.unique(g.sizes).tolist():
@@ -148,7 +134,7 @@ def _sized(g: Grouped) -> Sized:
 
 
 def _scale_of(sized: Sized) -> float:
-    """pooled_subsample_scale of groups already in matrices (the median needs only the set of differences)."""
+    """Robust σ of subsamples within units from all within-unit pairwise differences (their median)."""
     diffs = [np.abs(m[:, i] - m[:, j]) for _, m in sized.values() for i, j in combinations(range(m.shape[1]), 2)]
     if not diffs:
         return 0.0

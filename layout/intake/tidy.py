@@ -265,6 +265,12 @@ def _csv_text(text: str) -> str:
     return out.getvalue()[:-2]
 
 
+def _signed_zero(values: set[Any]) -> bool:
+    """Whether a set of floats holds a zero: -0.0 equals 0.0, so one could stand for the other, yet they are
+    written apart."""
+    return any(type(v) is float and v == 0.0 for v in values)
+
+
 def _column_text(values: np.ndarray) -> list[str]:
     """One column's cells (None for a blank) as text, in C loops (map, a regex over the joined text), not a
     Python call per cell."""
@@ -274,8 +280,8 @@ def _column_text(values: np.ndarray) -> list[str]:
     if types == {str}:
         quote = _QUOTE.search("\x00".join(filled)) is not None
         text = [_csv_text(v) for v in filled] if quote else filled
-    elif len(types) == 1 and len(filled) > 64 and len(uniq := set(filled)) * 4 < len(filled) and 0.0 not in uniq:
-        # whole numbers and floats repeat: each written once (0.0 left out: -0.0 is equal to it, yet written apart)
+    elif len(types) == 1 and len(filled) > 64 and len(uniq := set(filled)) * 4 < len(filled) and not _signed_zero(uniq):
+        # whole numbers and floats repeat: each written once
         table = {v: str(v) for v in uniq}
         text = list(map(table.__getitem__, filled))
     else:

@@ -503,8 +503,7 @@ class TestBadInput:
         self, tmp_path: Path, capsys: pytest.CaptureFixture[str]
     ) -> None:
         """Given a workbook instead of tidy.csv, analyze says what it needs and exits 2."""
-        plan = make_plan(loads_spec(FLATWORM_SPEC, "s.toml"))
-        plan.save(tmp_path / "plan.json")
+        plan = _saved_plan(tmp_path)
         book = tmp_path / "entry.xlsx"
         book.write_bytes(workbook_bytes(plan))
         assert main(["analyze", str(tmp_path / "plan.json"), str(book)]) == 2
@@ -516,8 +515,7 @@ class TestBadInput:
         """A tidy.csv cut down by hand (the response column gone): one line naming the column, exit 2."""
         import json
 
-        plan = make_plan(loads_spec(FLATWORM_SPEC, "s.toml"))
-        plan.save(tmp_path / "plan.json")
+        plan = _saved_plan(tmp_path)
         folder = tmp_path / "checked"
         folder.mkdir()
         report = {"summary": {"plan": plan.fingerprint, "by_severity": {"error": 0}}}
@@ -554,3 +552,10 @@ def test_power_grid_equals_power_of_cell_by_cell(design: str) -> None:
     for cell in grid:
         want = power_of(4, cell["units"], cell["subsamples"], 2.0, 3.0, 1.5, 0.05, design)
         assert cell["power"] == want or (np.isnan(want) and np.isnan(cell["power"]))
+
+
+def _saved_plan(folder: Path) -> Plan:
+    """The flatworm study's plan, saved as folder/plan.json."""
+    plan = make_plan(loads_spec(FLATWORM_SPEC, "s.toml"))
+    plan.save(folder / "plan.json")
+    return plan

@@ -122,6 +122,19 @@ def test_two_files_with_duplicates_and_conflicts(plan: Plan, filled: Path, tmp_p
     assert_same(*both(plan, [changed, tc.to_csv(filled, tmp_path / "copy.csv")]))
 
 
+@pytest.mark.parametrize("cut", [4, 0])
+def test_rows_shorter_than_the_header(plan: Plan, filled: Path, tmp_path: Path, cut: int) -> None:
+    """A CSV whose every row is shorter than its header (the value columns never typed), or has only blank lines:
+    the same check both ways, and no traceback (the columns of such rows were once taken past their end)."""
+    table = read_returned(filled)
+    lines = [",".join(table.headers)] + [",".join(rows.cell_text(c) for c in cells[:cut]) for _, cells in table.rows]
+    path = tmp_path / "short.csv"
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    quick, slow = both(plan, [path])
+    assert_same(quick, slow)
+    assert quick.errors  # values or whole units missing, said as findings
+
+
 def test_approved_fixes(tmp_path: Path) -> None:
     """test_fixes' study (a workbook and a re-typed CSV with a slip, a lost decimal point, a conflict and a
     foreign row), checked with every proposed fix approved: both sides of the conflict too, so a bad-fix is

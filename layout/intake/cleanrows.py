@@ -51,7 +51,7 @@ class CleanBlock:
 
 def _columns(cells: Sequence[list[Any]], width: int, lengths: set[int]) -> list[Sequence[Any]]:
     """The table's first `width` columns; a short row's missing cells are None (such a row is not clean)."""
-    if len(lengths) == 1:
+    if len(lengths) == 1 and min(lengths) >= width:
         return list(zip(*cells, strict=True))  # one transposition in C
     return [[c[i] if len(c) > i else None for c in cells] for i in range(width)]
 

@@ -135,6 +135,26 @@ def test_rows_shorter_than_the_header(plan: Plan, filled: Path, tmp_path: Path, 
     assert quick.errors  # values or whole units missing, said as findings
 
 
+def test_a_whole_number_too_large_to_keep(tmp_path: Path) -> None:
+    """A count with no upper limit typed as 1e20 (or 20 digits) is refused as out of range, both ways; it cannot
+    be held by the tidy table's 64-bit integers and once ended the check with an OverflowError traceback."""
+    spec = loads_spec(
+        "[study]\nid = 'BG1'\ntitle = 't'\nseed = 3\n[design]\ntype = 'crd'\nreplicates = 2\nsubsamples = 3\n"
+        "treatments = ['a', 'b']\n[[response]]\nname = 'count'\nkind = 'integer'\nmin = 0\n",
+        "big.toml",
+    )
+    big_plan = make_plan(spec)
+    typed = ["99999999999999999999", "1e20", "9223372036854775807", "12"]
+    path = tmp_path / "big.csv"
+    lines = [f"{s.code},{typed[k % len(typed)]}" for k, s in enumerate(big_plan.slots)]
+    path.write_text("code,count\n" + "\n".join(lines) + "\n", encoding="utf-8")
+    quick, slow = both(big_plan, [path])
+    assert_same(quick, slow)
+    whole = [typed[k % len(typed)] == "12" for k in range(len(big_plan.slots))]
+    assert sum(f.kind.value == "out-of-range" for f in quick.findings) == whole.count(False)
+    assert quick.tidy["count"].dropna().tolist() == [12] * whole.count(True)
+
+
 def test_approved_fixes(tmp_path: Path) -> None:
     """test_fixes' study (a workbook and a re-typed CSV with a slip, a lost decimal point, a conflict and a
     foreign row), checked with every proposed fix approved: both sides of the conflict too, so a bad-fix is

@@ -22,6 +22,7 @@ from layout.intake.columns import Columns
 from layout.intake.fastrows import SLOW, FastRows
 from layout.intake.readers import ReturnedTable
 from layout.intake.rows import Entry, PlanIndex
+from layout.intake.values import WHOLE_LIMIT
 
 _QUIET = frozenset({None, ""})
 
@@ -67,7 +68,7 @@ def _read_numbers(column: list[Any], fast: FastRows, name: str) -> tuple[np.ndar
     with np.errstate(invalid="ignore"):
         ok = (x >= low) & (x <= high)  # NaN fails here, as in the reader
     if r.kind == "integer":
-        ok &= np.isfinite(x) & (np.floor(x) == x)  # as float.is_integer, which infinities fail
+        ok &= (np.abs(x) < WHOLE_LIMIT) & (np.floor(x) == x)  # whole, and held by an int64 (infinities fail)
         return np.where(ok, x, 0).astype(np.int64), ok
     if r.decimals is not None:  # Python's round, as the reader: correctly rounded, unlike numpy's
         ok &= np.fromiter(map(round, column, repeat(r.decimals)), float, len(column)) == x

@@ -20,6 +20,7 @@ from typing import Any, Final
 from layout.intake.columns import Columns
 from layout.intake.readers import ReturnedTable
 from layout.intake.rows import Entry, PlanIndex
+from layout.intake.values import WHOLE_LIMIT
 from layout.spec import Response
 
 SLOW: Final = object()  # a cell the per-row path must look at
@@ -55,7 +56,7 @@ def _number_reader(r: Response, decimal_comma: bool) -> Reader:
         if not low <= x <= high:  # NaN and infinities fail here too
             return SLOW
         if integer:
-            return (int(x), text) if x.is_integer() else SLOW
+            return (int(x), text) if x.is_integer() and -WHOLE_LIMIT < x < WHOLE_LIMIT else SLOW
         return x, text
 
     return read

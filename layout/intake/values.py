@@ -7,7 +7,7 @@ import math
 import re
 from dataclasses import dataclass
 from datetime import date, datetime, timedelta
-from typing import Any
+from typing import Any, Final
 
 from layout.intake.findings import Kind
 from layout.spec import Response
@@ -77,6 +77,9 @@ def is_blank(cell: Any) -> bool:
     return cell is None or (isinstance(cell, str) and not cell.strip())
 
 
+WHOLE_LIMIT: Final = 2.0**63  # whole numbers are kept as 64-bit integers (the tidy table's Int64 columns)
+
+
 def _number(cell: Any, decimal_comma: bool) -> float | None:
     if isinstance(cell, bool):
         return None
@@ -96,6 +99,11 @@ def parse(cell: Any, r: Response, decimal_comma: bool = False) -> Parsed:
             return Parsed(problem=Kind.NOT_A_NUMBER, message=f"is not a number; {r.header} must be {_expect(r)}")
         if r.kind == "integer" and not x.is_integer():
             return Parsed(problem=Kind.NOT_A_NUMBER, message=f"is not a whole number; {r.header} must be {_expect(r)}")
+        if r.kind == "integer" and not -WHOLE_LIMIT < x < WHOLE_LIMIT:
+            return Parsed(
+                problem=Kind.OUT_OF_RANGE,
+                message=f"is too large to be kept as a whole number; {r.header} must be {_expect(r)}",
+            )
         if (r.min is not None and x < r.min) or (r.max is not None and x > r.max):
             return Parsed(
                 problem=Kind.OUT_OF_RANGE, message=f"is outside the allowed range; {r.header} must be {_expect(r)}"

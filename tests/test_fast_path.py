@@ -15,6 +15,7 @@ import functools
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pandas as pd
 import pytest
 from hypothesis import HealthCheck, given, settings
@@ -264,6 +265,29 @@ def test_random_cells_in_clean_rows_in_columns(
     entries, unmatched, found = check_rows(rest, cols, idx, quick=False)
     slow = check_rows(odd, cols, idx, quick=False)
     assert (sorted([*entries, *taken], key=lambda e: e.row), unmatched, found) == slow
+
+
+@settings(max_examples=300, deadline=None)
+@given(
+    st.lists(
+        st.one_of(
+            st.floats(),
+            st.decimals(places=3, allow_nan=False, allow_infinity=False).map(float),
+            st.integers(-(10**18), 10**18).map(lambda k: k / 1000),
+            st.integers(-(10**18), 10**18).map(lambda k: float(np.nextafter(k / 100, np.inf))),
+        ),
+        min_size=1,
+        max_size=30,
+    ),
+    st.sampled_from([0, 1, 2, 3, 6, 17]),
+)
+def test_decimals_in_numpy_equal_pythons_round(values: list[float], places: int) -> None:
+    """take_clean's vectorised decimals test against Python's round (the reference: correctly rounded), on random
+    floats, short decimals, values a unit in the last place away from them, and values too large for the shortcut."""
+    from layout.intake.cleanrows import has_decimals
+
+    got = has_decimals(np.array(values, dtype=float), values, places).tolist()
+    assert got == [round(v, places) == v for v in values]
 
 
 def test_the_plan_sheet_head_is_read_as_calamine_reads_it(filled: Path, soffice: str, tmp_path: Path) -> None:

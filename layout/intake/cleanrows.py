@@ -70,9 +70,28 @@ def _read_numbers(column: list[Any], fast: FastRows, name: str) -> tuple[np.ndar
     if r.kind == "integer":
         ok &= (np.abs(x) < WHOLE_LIMIT) & (np.floor(x) == x)  # whole, and held by an int64 (infinities fail)
         return np.where(ok, x, 0).astype(np.int64), ok
-    if r.decimals is not None:  # Python's round, as the reader: correctly rounded, unlike numpy's
-        ok &= np.fromiter(map(round, column, repeat(r.decimals)), float, len(column)) == x
+    if r.decimals is not None:
+        ok &= has_decimals(x, column, r.decimals)
     return x, ok
+
+
+def has_decimals(x: np.ndarray, column: Sequence[float], places: int) -> np.ndarray:
+    """Per value, round(value, places) == value (Python's round, as FastRows' reader: correctly rounded).
+
+    numpy's rint(x·10ᵈ)/10ᵈ gives the same answer while |x|·10ᵈ < 2⁵⁰: x·10ᵈ is then within a unit in the last
+    place of a whole k (when x is the double nearest k/10ᵈ) and rint finds k, and the division is correctly
+    rounded, so both say whether x is the double nearest some k/10ᵈ. Larger values go through Python's round
+    (tested against it on random floats).
+    """
+    if places > 15:
+        return np.fromiter(map(round, column, repeat(places)), float, len(column)) == x
+    scale = 10.0**places
+    with np.errstate(invalid="ignore", over="ignore"):
+        out = np.rint(x * scale) / scale == x
+        large = ~(np.abs(x) * scale < 2.0**50)  # NaN counts as large: Python decides
+    for k in np.flatnonzero(large).tolist():
+        out[k] = round(column[k], places) == column[k]
+    return out
 
 
 def _read_cells(column: list[Any], read: Any) -> tuple[list[Any], np.ndarray]:
@@ -101,8 +120,7 @@ def take_clean(
     if not rows or set(cols.responses) != set(idx.responses):  # a file without some response: per row
         return None, table
     fast = FastRows(table, cols, idx)
-    numbers = [n for n, _ in rows]
-    cells = [c for _, c in rows]
+    numbers, cells = zip(*rows, strict=True)
     width = fast.width
     lengths = set(map(len, cells))
     ragged = min(lengths) < width
@@ -165,8 +183,9 @@ def take_clean(
             ok &= has[name] | np.fromiter((c is None or c == "" for c in column), bool, len(column))
     if not ok.any():
         return None, table
+    every = bool(ok.all())
     take = np.flatnonzero(ok)
-    kept = [cells[k] for k in take]
+    kept = list(cells) if every else [cells[k] for k in take.tolist()]
     block = CleanBlock(
         table.file,
         np.array(numbers, dtype=np.int64)[take],
@@ -177,7 +196,7 @@ def take_clean(
         kept,
         fast,
     )
-    rest = [row for row, clean in zip(rows, ok.tolist(), strict=True) if not clean]
+    rest = [] if every else [row for row, clean in zip(rows, ok.tolist(), strict=True) if not clean]
     return block, replace(table, rows=rest)
 
 

@@ -411,3 +411,4 @@ def test_tidy_csv_of_real_checks(plan: Plan, filled: Path, tmp_path: Path) -> No
     for paths in ([filled], [changed, odd, tc.to_csv(filled, tmp_path / "copy.csv")]):
         tidy = check_returns(plan, paths).tidy
         assert tidy_csv(tidy) == tidy.to_csv(index=False, lineterminator="\n")
+        assert tidy_csv(tidy, plan) == tidy.to_csv(index=False, lineterminator="\n")  # the plan's text made once

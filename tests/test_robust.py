@@ -169,6 +169,44 @@ class TestDeletionFormula:
                 np.testing.assert_allclose(got[0], beta, rtol=1e-9, atol=1e-9)
                 assert got[1] == pytest.approx(s2, rel=1e-9)
 
+    def test_pair_scores_equal_scores_from_a_refit(self) -> None:
+        """The swap scores of all pairs at once equal the score computed pair by pair from a plain numpy lstsq
+        refit without the pair: the exchange's drop in squared residuals over the refit's residual variance."""
+        from layout.intake.robust import MIN_SEPARATION, _design_matrix, _Fit
+
+        rng = np.random.default_rng(5)
+        rcbd = SPEC.replace('type = "crd"\nreplicates = 8', 'type = "rcbd"\nblocks = 6')
+        plan = make_plan(loads_spec(rcbd, "s.toml"), 2)
+        units = list(plan.units)
+        treatments = list(plan.spec.treatments)
+        y = np.array([3.0 * treatments.index(u.treatment) + 0.5 * (u.block or 0) + rng.normal() for u in units])
+        y[[0, 5]] = y[[5, 0]]  # one exchange, so some pairs score high
+        x, first = _design_matrix(plan, units, treatments)
+        col = [first + treatments.index(u.treatment) - 1 if treatments.index(u.treatment) else -1 for u in units]
+        pairs = [(i, j) for i in range(len(units)) for j in range(i + 1, len(units)) if col[i] != col[j]]
+        i_of, j_of = np.array([p[0] for p in pairs]), np.array([p[1] for p in pairs])
+        got = _Fit(x, y).pair_scores(i_of, j_of, np.array(col)[i_of], np.array(col)[j_of])
+        scored = 0
+        for k, (i, j) in enumerate(pairs):
+            keep = np.ones(len(y), bool)
+            keep[[i, j]] = False
+            beta, *_ = np.linalg.lstsq(x[keep], y[keep], rcond=None)
+            s2 = float(np.sum((y[keep] - x[keep] @ beta) ** 2)) / (keep.sum() - np.linalg.matrix_rank(x))
+            fit_i, fit_j = x[i] @ beta, x[j] @ beta
+            swapped = beta.copy()
+            shift = (swapped[col[j]] if col[j] >= 0 else 0.0) - (swapped[col[i]] if col[i] >= 0 else 0.0)
+            swap_i, swap_j = fit_i + shift, fit_j - shift
+            better = abs(y[i] - swap_i) < abs(y[i] - fit_i) and abs(y[j] - swap_j) < abs(y[j] - fit_j)
+            if abs(abs(shift) - MIN_SEPARATION * np.sqrt(s2)) < 1e-9 * abs(shift):
+                continue  # at the very edge of the separation rule: either answer is right
+            if abs(shift) < MIN_SEPARATION * np.sqrt(s2) or not better:
+                assert np.isnan(got[k])  # no score
+                continue
+            want = ((y[i] - fit_i) ** 2 + (y[j] - fit_j) ** 2 - (y[i] - swap_i) ** 2 - (y[j] - swap_j) ** 2) / s2
+            assert got[k] == pytest.approx(want, rel=1e-8)
+            scored += 1
+        assert scored >= 2 and np.isnan(got).sum() > 0
+
     def test_not_estimable_without_the_pair(self) -> None:
         """When a treatment has no unit left without the pair, the pair is not scored."""
         from layout.intake.robust import _design_matrix, _Fit

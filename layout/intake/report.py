@@ -213,7 +213,7 @@ def write_report(
     texts = [
         report_json(result),
         report_html(plan, result, unblind),
-        tidy_csv(result.tidy),
+        tidy_csv(result.tidy, plan),
         "\ufeff" + proposals_csv(result.proposals),  # with a BOM, so Excel reads it as UTF-8
     ]
     return write_all(out_dir, dict(zip(REPORT_FILES, texts, strict=True)), force)

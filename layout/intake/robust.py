@@ -281,15 +281,24 @@ def find_swaps(plan: Plan, means: dict[str, float], threshold: float) -> list[Sw
         return []
     order = np.argsort(-np.abs(fit.resid))
     candidates = [int(i) for i in order[:_MAX_CANDIDATES]]
-    t_col = {t: (first + k - 1 if k else None) for k, t in enumerate(treatments)}
-    scored: list[tuple[float, int, int]] = []
-    for a_pos, i in enumerate(candidates):
-        for j in candidates[a_pos + 1 :]:
-            if units[i].treatment == units[j].treatment:
-                continue
-            score = fit.pair_score(i, j, t_col[units[i].treatment], t_col[units[j].treatment])
-            if score is not None and score > threshold:
-                scored.append((score, i, j))
+    column = {t: (first + k - 1 if k else -1) for k, t in enumerate(treatments)}  # -1: the reference treatment
+    pairs = [
+        (i, j)
+        for a, i in enumerate(candidates)
+        for j in candidates[a + 1 :]
+        if units[i].treatment != units[j].treatment
+    ]
+    if not pairs:
+        return []
+    i_of, j_of = (np.array(side, dtype=np.int64) for side in zip(*pairs, strict=True))
+    scores = fit.pair_scores(
+        i_of,
+        j_of,
+        np.array([column[units[i].treatment] for i, _ in pairs], dtype=np.int64),
+        np.array([column[units[j].treatment] for _, j in pairs], dtype=np.int64),
+    )
+    high = np.flatnonzero(scores > threshold)  # NaN (no score) is never above
+    scored = [(float(scores[k]), pairs[k][0], pairs[k][1]) for k in high.tolist()]
     used: set[int] = set()
     found = []
     for score, i, j in sorted(scored, reverse=True):
@@ -317,43 +326,44 @@ class _Fit:
         self.rss = float(self.resid @ self.resid)
         self.tiny = 1e-12 * max(1.0, float(np.var(y)))  # a residual variance this small is none
 
+    def without_pairs(self, i: np.ndarray, j: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """For each pair (i, j) of units, the fit without them: coefficients (pairs × terms), residual variance,
+        and whether both exist (some effect may not be estimable without the pair, or no variance is left)."""
+        x, inv = self.x, self.inv
+        xi, xj = x[i], x[j]
+        hi, hj = xi @ inv, xj @ inv  # rows of X_S (XᵀX)⁻
+        a, b = 1.0 - (hi * xi).sum(1), -(hi * xj).sum(1)  # I − H_SS, a 2 × 2 block per pair, inverted by formula
+        c, d = -(hj * xi).sum(1), 1.0 - (hj * xj).sum(1)
+        det = a * d - b * c
+        ok = np.abs(det) >= 1e-9
+        det = np.where(ok, det, 1.0)
+        ei, ej = self.resid[i], self.resid[j]
+        w0, w1 = (d * ei - b * ej) / det, (-c * ei + a * ej) / det  # (I − H_SS)⁻¹ e_S
+        beta = self.beta - (xi @ inv.T) * w0[:, None] - (xj @ inv.T) * w1[:, None]
+        df = len(self.y) - 2 - self.rank
+        s2 = (self.rss - (ei * w0 + ej * w1)) / df if df >= 2 else np.zeros(len(i))
+        return beta, s2, ok & (s2 > self.tiny)
+
     def without(self, i: int, j: int) -> tuple[np.ndarray, float] | None:
         """Coefficients and residual variance of the fit without units i and j, or None when not estimable."""
-        xs = self.x[[i, j]]
-        (a, b), (c, d) = (np.eye(2) - xs @ self.inv @ xs.T).tolist()
-        det = a * d - b * c  # a 2 × 2 block: its determinant and inverse written out, not a LAPACK call each
-        if abs(det) < 1e-9:
-            return None  # without the pair some effect cannot be estimated
-        m_inv = np.array([[d, -b], [-c, a]]) / det
-        es = self.resid[[i, j]]
-        beta = self.beta - self.inv @ xs.T @ (m_inv @ es)
-        df = len(self.y) - 2 - self.rank
-        s2 = (self.rss - float(es @ m_inv @ es)) / df if df >= 2 else 0.0
-        if s2 <= self.tiny:
-            return None
-        return beta, s2
+        beta, s2, ok = self.without_pairs(np.array([i]), np.array([j]))
+        return (beta[0], float(s2[0])) if ok[0] else None
 
-    def pair_score(self, i: int, j: int, ti: int | None, tj: int | None) -> float | None:
-        """The drop in squared residuals, over s², when units i and j exchange treatments."""
-        refit = self.without(i, j)
-        if refit is None:
-            return None
-        beta, s2 = refit
-        y, x = self.y, self.x
-
-        def predict(row: int, own: int | None, other: int | None) -> float:
-            v = x[row].copy()
-            if own is not None:
-                v[own] = 0.0
-            if other is not None:
-                v[other] = 1.0
-            return float(v @ beta)
-
-        fit_i, fit_j = float(x[i] @ beta), float(x[j] @ beta)
-        swap_i, swap_j = predict(i, ti, tj), predict(j, tj, ti)
-        if abs(swap_i - fit_i) < MIN_SEPARATION * np.sqrt(s2):
-            return None  # treatments this close cannot be told apart, and a swap between them changes little
-        if abs(y[i] - swap_i) >= abs(y[i] - fit_i) or abs(y[j] - swap_j) >= abs(y[j] - fit_j):
-            return None  # a swap must make both units fit better, not one very much better
-        drop = (y[i] - fit_i) ** 2 + (y[j] - fit_j) ** 2 - (y[i] - swap_i) ** 2 - (y[j] - swap_j) ** 2
-        return float(drop / s2)
+    def pair_scores(self, i: np.ndarray, j: np.ndarray, ti: np.ndarray, tj: np.ndarray) -> np.ndarray:
+        """For each pair (i, j) of units, with treatment columns ti, tj (-1 for the reference treatment): the
+        drop in squared residuals, over s², when the two exchange treatments; NaN where there is no score (see
+        without_pairs), where the treatments are too close to tell apart (a swap between them changes little),
+        or where the swap does not make both units fit better (not one very much better)."""
+        beta, s2, ok = self.without_pairs(i, j)
+        s2 = np.where(ok, s2, 1.0)
+        xi, xj, y = self.x[i], self.x[j], self.y
+        rows = np.arange(len(i))
+        own_i = np.where(ti >= 0, beta[rows, np.maximum(ti, 0)], 0.0)
+        own_j = np.where(tj >= 0, beta[rows, np.maximum(tj, 0)], 0.0)
+        fit_i, fit_j = (xi * beta).sum(1), (xj * beta).sum(1)
+        swap_i, swap_j = fit_i - own_i + own_j, fit_j - own_j + own_i
+        ok &= np.abs(swap_i - fit_i) >= MIN_SEPARATION * np.sqrt(s2)
+        yi, yj = y[i], y[j]
+        ok &= (np.abs(yi - swap_i) < np.abs(yi - fit_i)) & (np.abs(yj - swap_j) < np.abs(yj - fit_j))
+        drop = (yi - fit_i) ** 2 + (yj - fit_j) ** 2 - (yi - swap_i) ** 2 - (yj - swap_j) ** 2
+        return np.where(ok, drop / s2, np.nan)

@@ -48,6 +48,7 @@ subsample errors; unit means with experimental-error SD 1):
 from __future__ import annotations
 
 import math
+from collections import Counter
 from dataclasses import dataclass
 from functools import lru_cache
 from itertools import combinations
@@ -165,9 +166,21 @@ def swap_threshold(pairs: int, df: float = np.inf, leverage: float = 0.0, alpha:
     return float(-stdtrit(max(df, 2.0), alpha / max(1, pairs))) ** 2 * (1.0 + leverage)
 
 
+def units_with(plan: Plan, means: dict[str, float]) -> tuple[str, ...]:
+    """The codes of the units that have a mean, in plan order (usually every unit: then one tuple per plan)."""
+    if len(means) == len(plan.units) and means.keys() == plan.unit_by_code.keys():
+        return _all_codes(plan)
+    return tuple(u.code for u in plan.units if u.code in means)
+
+
+@lru_cache(maxsize=2)
+def _all_codes(plan: Plan) -> tuple[str, ...]:
+    return tuple(u.code for u in plan.units)
+
+
 def fit_size(plan: Plan, means: dict[str, float]) -> tuple[int, float]:
     """Residual df of the additive fit of unit means without a pair, and the mean leverage of a prediction."""
-    design = _design(plan, tuple(u.code for u in plan.units if u.code in means))
+    design = _design(plan, units_with(plan, means))
     if design is None:
         return 0, 0.0
     n = len(design.units) - 2
@@ -205,12 +218,9 @@ def outlier_candidates(values: dict[str, list[tuple[str, float]]] | Grouped) -> 
 
 def swap_candidates(plan: Plan, means: dict[str, float]) -> int:
     """How many pairs of units with different treatments find_swaps could flag."""
-    counts: dict[str, int] = {}
-    for u in plan.units:
-        if u.code in means:
-            counts[u.treatment] = counts.get(u.treatment, 0) + 1
-    n = sum(counts.values())
-    return (n * n - sum(c * c for c in counts.values())) // 2
+    counts = Counter(plan.unit_by_code[code].treatment for code in units_with(plan, means)).values()
+    n = sum(counts)
+    return (n * n - sum(c * c for c in counts)) // 2
 
 
 def find_outliers(values: dict[str, list[tuple[str, float]]] | Grouped, threshold: float) -> list[Outlier]:
@@ -271,7 +281,7 @@ def _design_matrix(plan: Plan, units: list[Unit], treatments: list[str]) -> tupl
 
 def find_swaps(plan: Plan, means: dict[str, float], threshold: float) -> list[Swap]:
     """Pairs of units in different treatments whose data fit each other's treatment far better."""
-    design = _design(plan, tuple(u.code for u in plan.units if u.code in means))
+    design = _design(plan, units_with(plan, means))
     if design is None:
         return []
     units, treatments, first = design.units, design.treatments, design.first

@@ -56,10 +56,13 @@ def screen(plan: Plan, groups: Groups) -> Screened:
 
 
 def _treatment_means(plan: Plan, means: dict[str, float]) -> dict[str, float]:
-    by: dict[str, list[float]] = {}
-    for code, m in means.items():
-        by.setdefault(plan.unit_by_code[code].treatment, []).append(m)
-    return {t: float(np.mean(v)) for t, v in by.items()}
+    """Each treatment's mean of its units' means (each treatment's means in the order given, as np.mean adds)."""
+    unit_by_code = plan.unit_by_code
+    labels, which = np.unique(np.array([unit_by_code[c].treatment for c in means]), return_inverse=True)
+    values = np.fromiter(means.values(), float, len(means))
+    order = np.argsort(which, kind="stable")
+    parts = np.split(values[order], np.cumsum(np.bincount(which, minlength=len(labels)))[:-1])
+    return {str(t): float(np.mean(part)) for t, part in zip(labels.tolist(), parts, strict=True)}
 
 
 def groups_of(plan: Plan, merged: Returned) -> Groups:

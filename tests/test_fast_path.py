@@ -209,13 +209,13 @@ ODD_CELLS = st.one_of(
 )
 
 
-@settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
-@given(data=st.data(), decimal_comma=st.booleans())
-def test_random_cells_in_clean_rows(plan: Plan, filled: Path, data: st.DataObject, decimal_comma: bool) -> None:
-    """Any cell put anywhere in a few clean rows: the same entries, unplaced rows and findings both ways."""
+def _odd_rows(
+    plan: Plan, filled: Path, data: st.DataObject, decimal_comma: bool, rows: int, least: int
+) -> tuple[ReturnedTable, Any, PlanIndex]:
+    """The first clean rows of the filled workbook with `least` to 6 odd cells put anywhere, maybe a formula."""
     table = read_returned(filled)
-    body = [(n, list(cells)) for n, cells in table.rows[:6]]
-    for _ in range(data.draw(st.integers(1, 6))):
+    body = [(n, list(cells)) for n, cells in table.rows[:rows]]
+    for _ in range(data.draw(st.integers(least, 6))):
         n = data.draw(st.integers(0, len(body) - 1))
         column = data.draw(st.integers(0, len(table.headers) - 1))
         codes = [plan.slots[0].code, plan.slots[1].code, plan.units[0].code]
@@ -223,7 +223,14 @@ def test_random_cells_in_clean_rows(plan: Plan, filled: Path, data: st.DataObjec
     odd = ReturnedTable(table.file, table.headers, table.header_row, body, decimal_comma=decimal_comma)
     odd.formulas = {(body[0][0], 8)} if data.draw(st.booleans()) else set()
     cols, _ = map_columns(odd, plan)
-    idx = PlanIndex(plan)
+    return odd, cols, PlanIndex(plan)
+
+
+@settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(data=st.data(), decimal_comma=st.booleans())
+def test_random_cells_in_clean_rows(plan: Plan, filled: Path, data: st.DataObject, decimal_comma: bool) -> None:
+    """Any cell put anywhere in a few clean rows: the same entries, unplaced rows and findings both ways."""
+    odd, cols, idx = _odd_rows(plan, filled, data, decimal_comma, rows=6, least=1)
     assert check_rows(odd, cols, idx, quick=True) == check_rows(odd, cols, idx, quick=False)
 
 
@@ -237,17 +244,7 @@ def test_random_cells_in_clean_rows_in_columns(
     entries, unplaced rows and findings are those of the per-row path."""
     from layout.intake.cleanrows import take_clean
 
-    table = read_returned(filled)
-    body = [(n, list(cells)) for n, cells in table.rows[:8]]
-    for _ in range(data.draw(st.integers(0, 6))):
-        n = data.draw(st.integers(0, len(body) - 1))
-        column = data.draw(st.integers(0, len(table.headers) - 1))
-        codes = [plan.slots[0].code, plan.slots[1].code, plan.units[0].code]
-        body[n][1][column] = data.draw(st.one_of(ODD_CELLS, st.sampled_from(codes)))
-    odd = ReturnedTable(table.file, table.headers, table.header_row, body, decimal_comma=decimal_comma)
-    odd.formulas = {(body[0][0], 8)} if data.draw(st.booleans()) else set()
-    cols, _ = map_columns(odd, plan)
-    idx = PlanIndex(plan)
+    odd, cols, idx = _odd_rows(plan, filled, data, decimal_comma, rows=8, least=0)
     block, rest = take_clean(odd, cols, idx)
     taken = [block.entry(k) for k in range(len(block))] if block else []  # each must be one FastRows takes
     required = [r.name for r in plan.spec.response if r.required]

@@ -69,17 +69,26 @@ def _unit_status(result: CheckResult) -> dict[tuple[str, str], str]:
     """(unit, round) → the worst status of its slots; some slots missing (not all) is 'partial'."""
     order = ["ok", "declared-missing", "partial", "conflict", "error", "missing"]
     tidy = result.tidy[result.tidy["status"] != "unmatched"]
-    rank = tidy["status"].map({s: i for i, s in enumerate(order)}).astype(float)
+    if tidy.empty:
+        return {}
+    status, statuses = pd.factorize(tidy["status"])  # integer codes: a pandas map over text costs 20 ms here
+    rank = np.array([order.index(s) for s in statuses], dtype=np.int64)[status]
+    units, unit_names = pd.factorize(tidy["unit"])
+    rounds, round_names = pd.factorize(tidy["round"])
+    group, firsts = pd.factorize(units * len(round_names) + rounds)  # (unit, round) pairs, first seen first
     missing, partial = order.index("missing"), order.index("partial")
-    frame = pd.DataFrame(
-        {"unit": tidy["unit"], "round": tidy["round"], "rank": rank, "kept": rank.where(rank != missing)}
-    )
-    by = frame.groupby(["unit", "round"], sort=False)
-    worst, least, kept = by["rank"].max(), by["rank"].min(), by["kept"].max()
+    worst = np.full(len(firsts), -1, dtype=np.int64)
+    least = np.full(len(firsts), len(order), dtype=np.int64)
+    kept = np.full(len(firsts), -1, dtype=np.int64)  # the worst status of the slots that are there
+    np.maximum.at(worst, group, rank)
+    np.minimum.at(least, group, rank)
+    np.maximum.at(kept, group, np.where(rank != missing, rank, -1))
     # slots missing beside present ones count as 'partial', and the worst of those and the rest is the unit's
     mixed = (worst == missing) & (least < missing)
-    worst = worst.where(~mixed, np.fmax(kept, partial))
-    return {key: order[int(r)] for key, r in zip(worst.index, worst.to_numpy(), strict=True)}
+    worst = np.where(mixed, np.maximum(kept, partial), worst)
+    unit_of = np.asarray(unit_names, dtype=object)[firsts // len(round_names)].tolist()
+    round_of = np.asarray(round_names, dtype=object)[firsts % len(round_names)].tolist()
+    return {(u, r): order[w] for u, r, w in zip(unit_of, round_of, worst.tolist(), strict=True)}
 
 
 def _strip_plots(plan: Plan, result: CheckResult, unblind: bool) -> list[dict[str, Any]]:

@@ -230,24 +230,19 @@ def _build(
     return Plan(spec, seed, dict(ALGORITHM), tuple(units), tuple(slots), tuple(rounds), salt, replaces)
 
 
+_DIGITS_AS_ZERO: Final = str.maketrans("123456789", "0" * 9)
+
+
 def parse_plan(text: str, file: str = "plan.json") -> Plan:
     """A Plan from plan.json text; PlanError when it is not a plan or was edited."""
-    oddities: list[str] = []  # floats, NaN/Infinity and long integers: where json and RFC 8785 may differ
+    oddities: list[str] = []  # floats and NaN/Infinity: where json and RFC 8785 may differ
 
-    def noted(kind: Any) -> Any:
-        def parse(token: str) -> Any:
-            oddities.append(token)
-            return kind(token)
-
-        return parse
+    def noted(token: str) -> float:
+        oddities.append(token)
+        return float(token)
 
     try:
-        data = json.loads(
-            text,
-            parse_float=noted(float),
-            parse_constant=noted(float),
-            parse_int=lambda t: noted(int)(t) if len(t) >= 16 else int(t),  # 2^53 has 16 digits
-        )
+        data = json.loads(text, parse_float=noted, parse_constant=noted)
     except json.JSONDecodeError as exc:
         raise PlanError.at(file, f"line {exc.lineno}, column {exc.colno}", f"not valid JSON: {exc.msg}") from None
     if not isinstance(data, dict) or data.get("format") != FORMAT:
@@ -263,7 +258,9 @@ def parse_plan(text: str, file: str = "plan.json") -> Plan:
     # Without floats, integers of 16 digits or more, or characters beyond the Basic Multilingual Plane
     # (typed or escaped), the json module writes the big lists as RFC 8785 does: no look value by value.
     wide = not text.isascii() and max(text) > "\uffff"
-    simple = frozenset() if oddities or wide or "\\ud" in text.lower() else frozenset(BIG_LISTS)
+    # 2^53 has 16 digits; a run of 16 in a text value only costs the slower look
+    long_integers = "0" * 16 in text.translate(_DIGITS_AS_ZERO)
+    simple = frozenset() if oddities or long_integers or wide or "\\ud" in text.lower() else frozenset(BIG_LISTS)
     try:
         recomputed = hashlib.sha256(canonical(data, simple)).hexdigest()
     except (rfc8785.CanonicalizationError, TypeError, ValueError) as exc:

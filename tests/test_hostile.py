@@ -105,6 +105,34 @@ def _date_out_of_range(good: Path, target: Path) -> Path:
     return target
 
 
+def _patched(good: Path, target: Path, part: str, where: str) -> Path:
+    """The workbook with one part's zip record made inconsistent, as a bad copy or a forged file would be
+    (layout of the records: PKWARE APPNOTE.TXT, sections 4.3.7 and 4.3.12):
+    'crc' changes the CRC-32 the directory gives, 'data' overwrites packed bytes in the middle of the part,
+    'size' makes the directory's unpacked size a tenth of the real one."""
+    data = bytearray(good.read_bytes())
+    with zipfile.ZipFile(good) as z:
+        info = z.getinfo(part)
+    name = part.encode()
+    central = next(
+        k for k in range(len(data)) if data.startswith(b"PK\x01\x02", k) and data[k + 46 : k + 46 + len(name)] == name
+    )
+    if where == "crc":
+        data[central + 16 : central + 20] = ((info.CRC + 1) % 2**32).to_bytes(4, "little")
+    elif where == "size":
+        data[central + 24 : central + 28] = (info.file_size // 10).to_bytes(4, "little")
+    else:
+        head = info.header_offset
+        lengths = int.from_bytes(data[head + 26 : head + 28], "little") + int.from_bytes(
+            data[head + 28 : head + 30], "little"
+        )
+        start = head + 30 + lengths
+        middle = start + info.compress_size // 2
+        data[middle : middle + 64] = bytes(range(64))
+    target.write_bytes(bytes(data))
+    return target
+
+
 # name → (file name, how to make it from the good workbook, words the message must hold)
 CASES: dict[str, tuple[str, Callable[[Path, Path], Path | bytes], str]] = {
     "empty-xlsx": ("e.xlsx", lambda g, t: b"", "is empty"),
@@ -140,6 +168,13 @@ CASES: dict[str, tuple[str, Callable[[Path, Path], Path | bytes], str]] = {
         "document type",
     ),  # fmt: skip
     "date-out-of-range": ("d.xlsx", _date_out_of_range, "out of any range"),
+    "bad-crc": ("crc.xlsx", lambda g, t: _patched(g, t, "xl/worksheets/sheet1.xml", "crc"), "damaged"),
+    "bad-packed-data": ("pk.xlsx", lambda g, t: _patched(g, t, "xl/worksheets/sheet1.xml", "data"), "damaged"),
+    "larger-than-declared": (
+        "big.xlsx",
+        lambda g, t: _patched(g, t, "xl/worksheets/sheet1.xml", "size"),
+        "larger than its zip entry says",
+    ),
     "zip-bomb": (
         "bomb.xlsx",
         lambda g, t: _rezip(g, t, lambda n, d: d, {"xl/media/bomb.bin": bytes(300 * 1024 * 1024)}),
@@ -174,6 +209,16 @@ def test_xlsm_values_are_read_and_nothing_run(plan: Plan, good: Path, tmp_path: 
     result = check_returns(plan, [target])
     assert [f for f in result.findings if f.severity.value == "error"] == []
     assert result.summary["slots_found"] == len(plan.slots)
+
+
+def test_a_stored_workbook_is_read(plan: Plan, good: Path, tmp_path: Path) -> None:
+    """A workbook zipped without compression (some tools store small parts) passes the scan and is read."""
+    stored = tmp_path / "stored.xlsx"
+    with zipfile.ZipFile(good) as src, zipfile.ZipFile(stored, "w", zipfile.ZIP_STORED) as dst:
+        for info in src.infolist():
+            dst.writestr(info.filename, src.read(info))
+    result = check_returns(plan, [stored])
+    assert result.errors == 0 and result.summary["slots_found"] == len(plan.slots)
 
 
 def test_cli_exit_and_report_for_unreadable_files(plan: Plan, good: Path, tmp_path: Path) -> None:

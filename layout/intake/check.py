@@ -19,6 +19,7 @@ from layout.intake.merge import completeness, missing_slots
 from layout.intake.proposals import propose_fixes
 from layout.intake.readahead import ReadAhead
 from layout.intake.returned import Returned, merge_returns, unblock_shared
+from layout.intake.robust import warm_screen
 from layout.intake.rows import PlanIndex
 from layout.intake.safety import DEFAULT_LIMITS, Limits
 from layout.intake.screen import statistical_findings
@@ -91,6 +92,7 @@ def _prepare(plan: Plan, idx: PlanIndex) -> None:
     (calamine parses without the GIL, in its own thread)."""
     idx.warm()
     warm_tidy(plan)
+    warm_screen(plan)
 
 
 def _columns_nowhere(plan: Plan, entries: list[Any], blocks: list[CleanBlock]) -> list[Finding]:

@@ -218,9 +218,21 @@ def outlier_candidates(values: dict[str, list[tuple[str, float]]] | Grouped) -> 
 
 def swap_candidates(plan: Plan, means: dict[str, float]) -> int:
     """How many pairs of units with different treatments find_swaps could flag."""
-    counts = Counter(plan.unit_by_code[code].treatment for code in units_with(plan, means)).values()
+    return _pairs(plan, units_with(plan, means))
+
+
+@lru_cache(maxsize=8)
+def _pairs(plan: Plan, codes: tuple[str, ...]) -> int:
+    counts = Counter(plan.unit_by_code[code].treatment for code in codes).values()
     n = sum(counts)
     return (n * n - sum(c * c for c in counts)) // 2
+
+
+def warm_screen(plan: Plan) -> None:
+    """The fit's design and the pair count for a return of every unit, made while a workbook is parsed."""
+    codes = _all_codes(plan)
+    _design(plan, codes)
+    _pairs(plan, codes)
 
 
 def find_outliers(values: dict[str, list[tuple[str, float]]] | Grouped, threshold: float) -> list[Outlier]:

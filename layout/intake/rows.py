@@ -97,6 +97,11 @@ class PlanIndex:
         return {s.code: k for k, s in enumerate(self.plan.slots)}
 
     @cached_property
+    def slot_codes(self) -> np.ndarray:
+        """The slot codes in plan order, as an array to pick from."""
+        return np.array([s.code for s in self.plan.slots], dtype=object)
+
+    @cached_property
     def unit_of_slot(self) -> np.ndarray:
         """Each slot's unit, as its place in plan.units."""
         place = {u.code: k for k, u in enumerate(self.plan.units)}
@@ -137,7 +142,7 @@ class PlanIndex:
 
     def warm(self) -> None:
         """Build now what a check of returns in columns looks up, while the returns are still being read."""
-        for name in ("slot_number", "unit_of_slot", "subsample_of_slot", "round_number"):
+        for name in ("slot_number", "slot_codes", "unit_of_slot", "subsample_of_slot", "round_number"):
             getattr(self, name)
         for name in ("unit", "block", "row", "col", "treatment"):
             self.planned_column(name)

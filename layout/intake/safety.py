@@ -10,8 +10,10 @@ message that says what it is and what to do.
 from __future__ import annotations
 
 import re
+import struct
 import zipfile
 import zlib
+from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Final
@@ -144,21 +146,54 @@ def _check_part(path: Path, z: zipfile.ZipFile, info: zipfile.ZipInfo, limits: L
     formula = False
     seen = 0
     tail = b""
-    with z.open(info) as fh:  # read in blocks, never more than the declared size
-        while block := fh.read(1 << 20):
-            seen += len(block)
-            if seen > info.file_size:
-                raise _refuse(path, f"part {info.filename} unpacks larger than its zip entry says; refused as unsafe")
-            window = tail + block
-            # "!" first (one memchr pass; most blocks of a sheet have none), then "<!" in UTF-8 or either UTF-16
-            # (two scans, not nine; a two-byte needle starting with "<" is slow in XML); comments and CDATA also
-            # start with "<!", so only then the nine marks
-            if b"!" in window and (b"<!" in window or b"<\x00!" in window) and any(mark in window for mark in _MARKS):
-                raise _refuse(
-                    path,
-                    f"part {info.filename} declares a document type (DTD); workbooks never need one and it can "
-                    "hide entity attacks, so the file is refused; save it again from Excel or LibreOffice",
-                )
-            formula = formula or (sheet and _FORMULA.search(window) is not None)
-            tail = window[-_OVERLAP:]
+    for block in _unpacked(path, z, info):
+        seen += len(block)
+        if seen > info.file_size:
+            raise _refuse(path, f"part {info.filename} unpacks larger than its zip entry says; refused as unsafe")
+        window = tail + block
+        # "!" first (one memchr pass; most blocks of a sheet have none), then "<!" in UTF-8 or either UTF-16
+        # (two scans, not nine; a two-byte needle starting with "<" is slow in XML); comments and CDATA also
+        # start with "<!", so only then the nine marks
+        if b"!" in window and (b"<!" in window or b"<\x00!" in window) and any(mark in window for mark in _MARKS):
+            raise _refuse(
+                path,
+                f"part {info.filename} declares a document type (DTD); workbooks never need one and it can "
+                "hide entity attacks, so the file is refused; save it again from Excel or LibreOffice",
+            )
+        formula = formula or (sheet and _FORMULA.search(window) is not None)
+        tail = window[-_OVERLAP:]
     return formula
+
+
+_BLOCK: Final = MB  # unpacked a megabyte at a time: few zlib calls, and the block stays in cache
+
+
+def _unpacked(path: Path, z: zipfile.ZipFile, info: zipfile.ZipInfo) -> Iterator[bytes]:
+    """A part's bytes, block by block. A deflated part is inflated here in large blocks; zipfile's reader
+    inflates in small ones, each taking the GIL back, which is slow while another thread runs Python."""
+    if info.compress_type != zipfile.ZIP_DEFLATED or info.flag_bits & 1:  # stored, other methods, encrypted
+        with z.open(info) as fh:
+            while block := fh.read(_BLOCK):
+                yield block
+        return
+    with path.open("rb") as fh:
+        fh.seek(info.header_offset)
+        head = fh.read(30)
+        if len(head) < 30 or not head.startswith(_ZIP):
+            raise zipfile.BadZipFile(f"no local header for {info.filename}")
+        name, extra = struct.unpack("<HH", head[26:30])
+        fh.seek(name + extra, 1)
+        packed = fh.read(info.compress_size)
+    if len(packed) < info.compress_size:
+        raise EOFError(info.filename)
+    inflate = zlib.decompressobj(-zlib.MAX_WBITS)
+    crc = 0
+    while not inflate.eof:
+        block = inflate.decompress(packed, _BLOCK)  # never more than a block: the caller counts them
+        packed = inflate.unconsumed_tail
+        if not block and not packed:
+            raise EOFError(info.filename)  # the packed data ended before the deflate stream did
+        crc = zlib.crc32(block, crc)
+        yield block
+    if crc != info.CRC:
+        raise zipfile.BadZipFile(f"bad CRC-32 for {info.filename}")

@@ -21,6 +21,7 @@ from layout.intake.robust import (
     swap_candidates,
     swap_threshold,
 )
+from layout.intake.rows import PlanIndex
 from layout.plan import Plan
 
 # (round, response) → the values by unit: a Grouped, or unit → [(slot, value)]
@@ -103,22 +104,22 @@ def groups_of(plan: Plan, merged: Returned) -> Groups:
         for j, n in enumerate(numeric):
             pick = np.flatnonzero(in_round & np.concatenate(has[n])[order])
             if len(pick):
-                g = _grouped_of(plan, unit_all[pick], slot_all[pick], np.concatenate(values[n])[order][pick])
+                g = _grouped_of(merged.idx, unit_all[pick], slot_all[pick], np.concatenate(values[n])[order][pick])
                 firsts.append((int(seq_all[pick[0]]), j, (round_.name, n), g))
     return {key: g for _, _, key, g in sorted(firsts, key=lambda f: (f[0], f[1]))}
 
 
-def _grouped_of(plan: Plan, unit: np.ndarray, slot: np.ndarray, values: np.ndarray) -> Grouped:
+def _grouped_of(idx: PlanIndex, unit: np.ndarray, slot: np.ndarray, values: np.ndarray) -> Grouped:
     """Values in reading order, gathered unit by unit (units in the order first read)."""
+    units = idx.plan.units
     first = np.unique(unit, return_index=True)[1]  # each unit's first place, units ascending
     units_read = unit[np.sort(first)]  # the units, in the order first read
-    rank = np.empty(len(plan.units), dtype=np.int64)
+    rank = np.empty(len(units), dtype=np.int64)
     rank[units_read] = np.arange(len(units_read))
     order = np.argsort(rank[unit], kind="stable")
-    codes = [s.code for s in plan.slots]
     return Grouped(
-        [plan.units[u].code for u in units_read.tolist()],
-        [codes[k] for k in slot[order].tolist()],
+        [units[u].code for u in units_read.tolist()],
+        idx.slot_codes[slot[order]].tolist(),
         values[order],
         np.bincount(rank[unit], minlength=len(units_read)),
     )

@@ -101,7 +101,7 @@ def tidy_table(plan: Plan, merged: Returned, unmatched: list[Unmatched]) -> pd.D
             frame[name] = column
         return frame
     # rare: every column as a list, the unplaced rows after the planned ones
-    data = {**{c: list(v) for c, v in plan_columns.items()}, **{c: _as_list(v) for c, v in data.items()}}
+    data = {**{c: _as_list(v) for c, v in plan_columns.items()}, **{c: _as_list(v) for c, v in data.items()}}
     for x in unmatched:
         row = {
             "code": x.code or None,
@@ -125,38 +125,46 @@ def tidy_table(plan: Plan, merged: Returned, unmatched: list[Unmatched]) -> pd.D
 
 
 @lru_cache(maxsize=2)
-def _plan_part(plan: Plan) -> tuple[np.ndarray, dict[str, list[Any]]]:
-    """The tidy rows' places (round × slots + slot) and the plan's columns, units in plan order."""
-    pairs = [(u, s) for u in plan.units for s in plan.slots_of[u.code]]
-    rounds = len(plan.rounds)
+def _plan_part(plan: Plan) -> tuple[np.ndarray, dict[str, Any]]:
+    """The tidy rows' places (round × slots + slot) and the plan's columns, units in plan order: text as object
+    arrays, whole numbers as pandas integer arrays. Made unit by unit, then spread over the units' slots."""
+    units, by_unit, rounds = plan.units, plan.slots_of, len(plan.rounds)
+    slots = [s for u in units for s in by_unit[u.code]]
     n_slots = len(plan.slots)
-    if all(a is b for (_, a), b in zip(pairs, plan.slots, strict=True)):  # plans list slots unit by unit
+    if all(a is b for a, b in zip(slots, plan.slots, strict=True)):  # plans list slots unit by unit
         order = np.arange(n_slots * rounds, dtype=np.int64)
     else:
         slot_place = {s.code: k for k, s in enumerate(plan.slots)}
-        order = np.array([r * n_slots + slot_place[s.code] for r in range(rounds) for _, s in pairs], dtype=np.int64)
+        order = np.array([r * n_slots + slot_place[s.code] for r in range(rounds) for s in slots], dtype=np.int64)
+    unit_at = np.tile(np.repeat(np.arange(len(units)), [len(by_unit[u.code]) for u in units]), rounds)
+
+    def text(values: list[Any], at: np.ndarray) -> np.ndarray:
+        out = np.empty(len(values), dtype=object)
+        out[:] = values
+        return out[at]
+
+    def whole(values: list[Any], at: np.ndarray) -> Any:
+        blank = np.array([v is None for v in values], dtype=bool)
+        numbers = np.array([0 if v is None else v for v in values], dtype=np.int64)
+        return pd.arrays.IntegerArray(numbers[at], blank[at])
+
+    slot_at = np.tile(np.arange(len(slots)), rounds)
     columns = {
-        "code": [s.code for _, s in pairs] * rounds,
-        "unit": [u.code for u, _ in pairs] * rounds,
-        "serial": [u.serial for u, _ in pairs] * rounds,
-        "treatment": [u.treatment for u, _ in pairs] * rounds,
-        **{f: [u.levels.get(f) for u, _ in pairs] * rounds for f in factor_columns(plan)},
-        "block": [u.block for u, _ in pairs] * rounds,
-        "row": [u.row for u, _ in pairs] * rounds,
-        "col": [u.col for u, _ in pairs] * rounds,
-        "whole_plot": [u.whole_plot for u, _ in pairs] * rounds,
-        "subsample": [s.subsample for _, s in pairs] * rounds,
-        "round": [rnd.name for rnd in plan.rounds for _ in pairs],
+        "code": text([s.code for s in slots], slot_at),
+        "unit": text([u.code for u in units], unit_at),
+        "serial": whole([u.serial for u in units], unit_at),
+        "treatment": text([u.treatment for u in units], unit_at),
+        **{f: text([u.levels.get(f) for u in units], unit_at) for f in factor_columns(plan)},
+        **{name: whole([getattr(u, name) for u in units], unit_at) for name in ("block", "row", "col", "whole_plot")},
+        "subsample": whole([s.subsample for s in slots], slot_at),
+        "round": text([r.name for r in plan.rounds], np.repeat(np.arange(rounds), len(slots))),
     }
     return order, columns
 
 
 @lru_cache(maxsize=2)
 def _plan_frame(plan: Plan) -> pd.DataFrame:
-    frame = pd.DataFrame(_plan_part(plan)[1])
-    for col in ("serial", "block", "row", "col", "whole_plot", "subsample"):
-        frame[col] = frame[col].astype("Int64")
-    return frame
+    return pd.DataFrame(_plan_part(plan)[1])
 
 
 def warm_tidy(plan: Plan) -> None:

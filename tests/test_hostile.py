@@ -256,3 +256,20 @@ def test_openpyxl_parses_through_defusedxml() -> None:
     from openpyxl.xml import DEFUSEDXML
 
     assert DEFUSEDXML is True
+
+
+@pytest.mark.parametrize("large_first", [True, False])
+def test_of_two_bad_parts_the_first_in_the_zip_is_named(tmp_path: Path, large_first: bool) -> None:
+    """The largest part is scanned in a second thread; the refusal still names the first bad part in the zip."""
+    from layout.errors import UnreadableFile
+    from layout.intake.safety import inspect_zip
+
+    large = ("xl/worksheets/sheet1.xml", XXE + "<!-- -->" * 300_000)  # over a megabyte: the threaded path
+    small = ("xl/sharedStrings.xml", XXE)
+    target = tmp_path / "two.xlsx"
+    with zipfile.ZipFile(target, "w", zipfile.ZIP_DEFLATED) as z:
+        for name, text in (large, small) if large_first else (small, large):
+            z.writestr(name, text)
+    with pytest.raises(UnreadableFile, match="document type") as caught:
+        inspect_zip(target)
+    assert (large if large_first else small)[0] in str(caught.value)

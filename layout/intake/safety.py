@@ -14,6 +14,7 @@ import struct
 import zipfile
 import zlib
 from collections.abc import Iterator
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Final
@@ -113,10 +114,7 @@ def inspect_zip(path: Path, limits: Limits = DEFAULT_LIMITS) -> bool:
                 raise _refuse(
                     path, f"unpacks to {total // MB} MB, more than {limits.unpacked_total // MB} MB; refused as unsafe"
                 )
-            formulas = False
-            for i in infos:
-                formulas |= _check_part(path, z, i, limits)
-            return formulas
+            return _check_parts(path, z, infos, limits)
     except zipfile.BadZipFile:
         raise _refuse(
             path, "is a damaged workbook (cut short while copying or saving?); save or copy it again"
@@ -125,6 +123,42 @@ def inspect_zip(path: Path, limits: Limits = DEFAULT_LIMITS) -> bool:
         raise _refuse(path, "is a damaged workbook: a part cannot be unpacked; save or copy it again") from None
     except NotImplementedError as exc:
         raise _refuse(path, f"uses a zip feature no reader here supports ({exc}); save it again as .xlsx") from None
+
+
+_FAILURES: Final = (UnreadableFile, zipfile.BadZipFile, zlib.error, EOFError, NotImplementedError)
+Failure = tuple[int, Exception]  # a part's place in the zip, and why it was refused
+
+
+def _check_parts(path: Path, z: zipfile.ZipFile, infos: list[zipfile.ZipInfo], limits: Limits) -> bool:
+    """_check_part over every part: the largest (the data sheet) in a second thread while this one takes the
+    rest, as unpacking runs without the GIL. When parts fail, the first in the zip's order is the one raised."""
+    places = list(enumerate(infos))
+    largest = max(places, key=lambda p: p[1].file_size, default=None)
+    if largest is None or largest[1].file_size < _BLOCK:  # too small to gain from a thread
+        formulas, failure = _scan(path, z, places, limits)
+    else:
+        with ThreadPoolExecutor(1, thread_name_prefix="scan") as pool:
+            ahead = pool.submit(_scan, path, z, [largest], limits)
+            formulas, failure = _scan(path, z, [p for p in places if p is not largest], limits)
+            found, failed = ahead.result()
+        formulas |= found
+        failure = min((f for f in (failure, failed) if f), key=lambda f: f[0], default=None)
+    if failure is not None:
+        raise failure[1]
+    return formulas
+
+
+def _scan(
+    path: Path, z: zipfile.ZipFile, places: list[tuple[int, zipfile.ZipInfo]], limits: Limits
+) -> tuple[bool, Failure | None]:
+    """Whether these parts hold a formula, and the first of them that failed, if one did (the rest not read)."""
+    formulas = False
+    for place, info in places:
+        try:
+            formulas |= _check_part(path, z, info, limits)
+        except _FAILURES as exc:
+            return formulas, (place, exc)
+    return formulas, None
 
 
 def _check_part(path: Path, z: zipfile.ZipFile, info: zipfile.ZipInfo, limits: Limits) -> bool:

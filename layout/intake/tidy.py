@@ -6,7 +6,7 @@ import csv
 import io
 import re
 from functools import lru_cache
-from typing import Any
+from typing import Any, Final
 
 import numpy as np
 import pandas as pd
@@ -170,6 +170,7 @@ def _plan_frame(plan: Plan) -> pd.DataFrame:
 def warm_tidy(plan: Plan) -> None:
     """Make the plan's part of the tidy table, and its text, now, while the returns are still being read."""
     _plan_frame(plan)
+    _whole_texts(_table_size(len(plan.slots) * len(plan.rounds) + 64))  # the spreadsheet rows of one return
     _plan_text(plan)
 
 
@@ -248,9 +249,9 @@ def tidy_csv(frame: pd.DataFrame, plan: Plan | None = None) -> str:
         return header
     lead = _plan_text(plan) if plan is not None and _starts_with_plan(frame, plan) else []
     skip = len(_plan_frame(plan).columns) if lead else 0  # the plan's columns of its rows, written already
-    columns = [_column_text(frame[c].to_numpy(dtype=object, na_value=None)) for c in frame.columns[skip:]]
+    columns = [_series_text(frame[c]) for c in frame.columns[skip:]]
     if lead:
-        tail = [_column_text(frame[c].to_numpy(dtype=object, na_value=None)[len(lead) :]) for c in frame.columns[:skip]]
+        tail = [_series_text(frame[c], len(lead)) for c in frame.columns[:skip]]
         lead = lead + list(map(",".join, zip(*tail, strict=True)))  # rows after the plan's: unplaced ones
         columns.insert(0, lead)
     return header + "\n".join(map(",".join, zip(*columns, strict=True))) + "\n"
@@ -273,7 +274,7 @@ def _starts_with_plan(frame: pd.DataFrame, plan: Plan) -> bool:
 def _plan_text(plan: Plan) -> list[str]:
     """Each tidy row's plan columns as CSV text, joined: made while a returned workbook is parsed."""
     part = _plan_frame(plan)
-    columns = [_column_text(part[c].to_numpy(dtype=object, na_value=None)) for c in part.columns]
+    columns = [_series_text(part[c]) for c in part.columns]
     return list(map(",".join, zip(*columns, strict=True)))
 
 
@@ -305,6 +306,36 @@ def _signed_zero(values: set[Any]) -> bool:
     """Whether a set of floats holds a zero: -0.0 equals 0.0, so one could stand for the other, yet they are
     written apart."""
     return any(type(v) is float and v == 0.0 for v in values)
+
+
+def _series_text(column: pd.Series, start: int = 0) -> list[str]:
+    """A frame column's cells from row `start` on, as CSV text; whole numbers picked from a table of their text."""
+    cells = column.array[start:]
+    if isinstance(cells, pd.arrays.IntegerArray) and len(cells):
+        numbers = cells.to_numpy(dtype=np.int64, na_value=0)
+        top = int(numbers.max())
+        if numbers.min() >= 0 and top < _WHOLE_TABLE_LIMIT:
+            text = _whole_texts(_table_size(top))[numbers]
+            text[cells.isna()] = ""
+            return text.tolist()
+    return _column_text(cells.to_numpy(dtype=object, na_value=None))
+
+
+_WHOLE_TABLE_LIMIT: Final = 1 << 24
+
+
+def _table_size(top: int) -> int:
+    """The size of the table that holds `top`: a power of two, and at least 2¹⁷, so that a check's whole-number
+    columns (serial, subsample, count, spreadsheet row) share one table."""
+    return max(1 << 17, 1 << top.bit_length())
+
+
+@lru_cache(maxsize=2)
+def _whole_texts(size: int) -> np.ndarray:
+    """str(k) for k in range(size)."""
+    out = np.empty(size, dtype=object)
+    out[:] = list(map(str, range(size)))
+    return out
 
 
 def _column_text(values: np.ndarray) -> list[str]:

@@ -12,12 +12,12 @@ from __future__ import annotations
 import hashlib
 import json
 import secrets
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 from functools import cached_property
 from itertools import groupby
 from operator import attrgetter
 from pathlib import Path
-from typing import Any, Final
+from typing import Any, Final, TypeVar
 
 import rfc8785
 from pydantic import ValidationError
@@ -230,6 +230,28 @@ def _build(
     return Plan(spec, seed, dict(ALGORITHM), tuple(units), tuple(slots), tuple(rounds), salt, replaces)
 
 
+Record = TypeVar("Record", Unit, Slot)
+
+
+def _records(kind: type[Record], items: Any) -> tuple[Record, ...]:
+    """kind(**item) for each item, without a call to the dataclass's __init__ per item (a frozen one sets each
+    field through object.__setattr__: 0.07 s for 100,000 slots, against 0.02 here). TypeError, as kind(**item)
+    would raise, unless every item is an object with exactly kind's fields."""
+    names = {f.name for f in fields(kind)}
+    if not isinstance(items, list) or not set(map(type, items)) <= {dict}:
+        raise TypeError(f"the {kind.__name__.lower()}s are not a list of objects")
+    if items and (set(map(len, items)) != {len(names)} or set().union(*items) != names):
+        raise TypeError(f"each {kind.__name__.lower()} must have exactly the fields {', '.join(sorted(names))}")
+    new = object.__new__
+
+    def record(item: dict[str, Any]) -> Record:
+        made = new(kind)
+        made.__dict__.update(item)
+        return made
+
+    return tuple(map(record, items))
+
+
 _DIGITS_AS_ZERO: Final = str.maketrans("123456789", "0" * 9)
 
 
@@ -277,8 +299,8 @@ def parse_plan(text: str, file: str = "plan.json") -> Plan:
             spec=Spec.model_validate(data["spec"]),
             seed=int(data["seed"]),
             rng=dict(data["rng"]),
-            units=tuple(Unit(**u) for u in data["units"]),
-            slots=tuple(Slot(**s) for s in data["slots"]),
+            units=_records(Unit, data["units"]),
+            slots=_records(Slot, data["slots"]),
             rounds=tuple(Round(r["name"], tuple(r["order"])) for r in data["rounds"]),
             salt=int(data["codes"]["salt"]),
             replaces=data.get("replaces"),

@@ -7,6 +7,7 @@ import hashlib
 import json
 import re
 from pathlib import Path
+from typing import Any
 
 import pytest
 import rfc8785
@@ -281,3 +282,29 @@ def test_edited_plan_fingerprint_is_the_rfc8785_one(old: str, new: str) -> None:
         parse_plan(edited, "edited.json")
     message = str(caught.value)
     assert (expected in message) if expected else "cannot be canonicalised" in message
+
+
+@pytest.mark.parametrize(
+    ("part", "edit"),
+    [
+        ("slots", lambda items: items[0].pop("unit")),
+        ("slots", lambda items: items[-1].update(extra=1)),
+        ("units", lambda items: items[3].pop("walk")),
+        ("units", lambda items: items.append("a unit")),
+    ],
+)
+def test_a_plan_whose_records_lack_or_add_fields_is_refused(part: str, edit: Any) -> None:
+    """A unit or slot with a field missing or added is refused in one line, even with a fingerprint made
+    anew for the edited content (rfc8785, the reference library)."""
+    from layout.plan import _UNFINGERPRINTED, parse_plan
+
+    data = json.loads(
+        (Path(__file__).parent / "golden" / "field-irrigation-rcbd.plan.json").read_text(encoding="utf-8")
+    )
+    edit(data[part])
+    data["fingerprint"] = hashlib.sha256(
+        rfc8785.dumps({k: v for k, v in data.items() if k not in _UNFINGERPRINTED})
+    ).hexdigest()
+    with pytest.raises(PlanError, match="not a complete layout plan") as caught:
+        parse_plan(json.dumps(data), "edited.json")
+    assert "\n" not in str(caught.value)

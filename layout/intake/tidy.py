@@ -314,20 +314,20 @@ def _series_text(column: pd.Series, start: int = 0) -> list[str]:
     if isinstance(cells, pd.arrays.IntegerArray) and len(cells):
         numbers = cells.to_numpy(dtype=np.int64, na_value=0)
         top = int(numbers.max())
-        if numbers.min() >= 0 and top < _WHOLE_TABLE_LIMIT:
+        if numbers.min() >= 0 and top < max(_SMALL_TABLE, 2 * len(numbers)):  # a table no larger than the column
             text = _whole_texts(_table_size(top))[numbers]
             text[cells.isna()] = ""
             return text.tolist()
     return _column_text(cells.to_numpy(dtype=object, na_value=None))
 
 
-_WHOLE_TABLE_LIMIT: Final = 1 << 24
+_SMALL_TABLE: Final = 1 << 17
 
 
 def _table_size(top: int) -> int:
     """The size of the table that holds `top`: a power of two, and at least 2¹⁷, so that a check's whole-number
     columns (serial, subsample, count, spreadsheet row) share one table."""
-    return max(1 << 17, 1 << top.bit_length())
+    return max(_SMALL_TABLE, 1 << top.bit_length())
 
 
 @lru_cache(maxsize=2)

@@ -98,10 +98,10 @@ def _table(file: str, rows: list[list[Any]], **extra: Any) -> ReturnedTable:
     at = _header_at(rows)
     if at < 0:
         return ReturnedTable(file, [], 0, [], **extra)
-    width = max(len(r) for r in rows[at:])
+    width = max(map(len, rows[at:]))
     # cells beyond the header row still count: they become added columns, so nothing typed is lost
     headers = ["" if c is None else str(c) for c in rows[at]] + [""] * (width - len(rows[at]))
-    body = [(at + 2 + i, r) for i, r in enumerate(rows[at + 1 :])]  # rows are lists already; never changed here
+    body = list(zip(range(at + 2, len(rows) + 1), rows[at + 1 :]))  # rows are lists already; never changed here
     return ReturnedTable(file, headers, at + 1, body, **extra)
 
 

@@ -333,6 +333,33 @@ def test_unit_status_in_pandas_equals_the_slot_by_slot_rule(statuses: list[str])
     assert _unit_status(result) == _unit_status_by_hand(tidy)
 
 
+@settings(max_examples=100, deadline=None)
+@given(st.lists(st.sampled_from(["ok", "declared-missing", "conflict", "error", "missing", "unmatched"]), min_size=1))
+def test_status_counts_equal_a_count_unit_by_unit(statuses: list[str]) -> None:
+    """The large study's summary of the map, counted from arrays, against a count over every planned unit and
+    round of the slot-by-slot statuses (a unit with no row in a round counted missing)."""
+    from types import SimpleNamespace
+
+    from layout.intake.report import STATUS_COLOURS, _status_counts
+
+    n = len(statuses)
+    tidy = pd.DataFrame(
+        {"unit": [f"U{i % 5}" for i in range(n)], "round": [f"r{i % 3 % 2}" for i in range(n)], "status": statuses}
+    )
+    units = [SimpleNamespace(code=f"U{i}") for i in range(4)]  # U4 is in the table but not planned
+    plan = SimpleNamespace(
+        units=units,
+        unit_by_code={u.code: u for u in units},
+        rounds=[SimpleNamespace(name=r) for r in ("r0", "r1", "r2")],
+    )
+    by_hand = _unit_status_by_hand(tidy)
+    expected = {r.name: dict.fromkeys(STATUS_COLOURS, 0) for r in plan.rounds}
+    for u in units:
+        for r in plan.rounds:
+            expected[r.name][by_hand.get((u.code, r.name), "missing")] += 1
+    assert _status_counts(CheckResult([], tidy, {}), plan) == expected  # type: ignore[arg-type]
+
+
 def _outliers_by_hand(values: dict[str, list[tuple[str, float]]], threshold: float) -> list[Any]:
     """find_outliers as first written: every unit in Python, the scale from a list of all pairwise differences."""
     import math

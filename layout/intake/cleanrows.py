@@ -131,8 +131,9 @@ def take_clean(
     if bad_rows:
         ok &= np.fromiter((n not in bad_rows for n in numbers), bool, len(numbers))
     columns = _columns(cells, width, lengths)
-    slot_at = idx.slot_number
-    slot = np.fromiter(map(slot_at.get, columns[fast.code_at], repeat(-1)), np.int64, len(cells))
+    codes = np.empty(len(cells), dtype=object)
+    codes[:] = columns[fast.code_at]
+    slot = idx.slot_lookup.get_indexer(codes).astype(np.int64)  # -1 where the cell is no planned code
     ok &= slot >= 0
     slot = np.where(ok, slot, 0)
     unit = idx.unit_of_slot[slot]

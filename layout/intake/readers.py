@@ -101,7 +101,7 @@ def _table(file: str, rows: list[list[Any]], **extra: Any) -> ReturnedTable:
     width = max(map(len, rows[at:]))
     # cells beyond the header row still count: they become added columns, so nothing typed is lost
     headers = ["" if c is None else str(c) for c in rows[at]] + [""] * (width - len(rows[at]))
-    body = list(zip(range(at + 2, len(rows) + 1), rows[at + 1 :]))  # rows are lists already; never changed here
+    body = list(zip(range(at + 2, len(rows) + 1), rows[at + 1 :], strict=True))  # rows are lists; never changed here
     return ReturnedTable(file, headers, at + 1, body, **extra)
 
 

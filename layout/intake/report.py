@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+from collections import Counter
 from pathlib import Path
 from typing import Any, Final
 
@@ -65,20 +66,23 @@ def report_json(result: CheckResult) -> str:
     return json.dumps(data, indent=1, ensure_ascii=False, default=str) + "\n"
 
 
-def _unit_status(result: CheckResult) -> dict[tuple[str, str], str]:
-    """(unit, round) → the worst status of its slots; some slots missing (not all) is 'partial'."""
-    order = ["ok", "declared-missing", "partial", "conflict", "error", "missing"]
+_ORDER: Final = ("ok", "declared-missing", "partial", "conflict", "error", "missing")  # better to worse
+
+
+def _worst_status(result: CheckResult) -> tuple[list[str], list[str], np.ndarray]:
+    """Per (unit, round) with a row in the tidy table: the unit, the round and the worst status of its slots
+    (as a place in _ORDER); some slots missing (not all) is 'partial'."""
     tidy = result.tidy[result.tidy["status"] != "unmatched"]
     if tidy.empty:
-        return {}
+        return [], [], np.zeros(0, dtype=np.int64)
     status, statuses = pd.factorize(tidy["status"])  # integer codes: a pandas map over text costs 20 ms here
-    rank = np.array([order.index(s) for s in statuses], dtype=np.int64)[status]
+    rank = np.array([_ORDER.index(s) for s in statuses], dtype=np.int64)[status]
     units, unit_names = pd.factorize(tidy["unit"])
     rounds, round_names = pd.factorize(tidy["round"])
     group, firsts = pd.factorize(units * len(round_names) + rounds)  # (unit, round) pairs, first seen first
-    missing, partial = order.index("missing"), order.index("partial")
+    missing, partial = _ORDER.index("missing"), _ORDER.index("partial")
     worst = np.full(len(firsts), -1, dtype=np.int64)
-    least = np.full(len(firsts), len(order), dtype=np.int64)
+    least = np.full(len(firsts), len(_ORDER), dtype=np.int64)
     kept = np.full(len(firsts), -1, dtype=np.int64)  # the worst status of the slots that are there
     np.maximum.at(worst, group, rank)
     np.minimum.at(least, group, rank)
@@ -88,7 +92,13 @@ def _unit_status(result: CheckResult) -> dict[tuple[str, str], str]:
     worst = np.where(mixed, np.maximum(kept, partial), worst)
     unit_of = np.asarray(unit_names, dtype=object)[firsts // len(round_names)].tolist()
     round_of = np.asarray(round_names, dtype=object)[firsts % len(round_names)].tolist()
-    return {(u, r): order[w] for u, r, w in zip(unit_of, round_of, worst.tolist(), strict=True)}
+    return unit_of, round_of, worst
+
+
+def _unit_status(result: CheckResult) -> dict[tuple[str, str], str]:
+    """(unit, round) → the worst status of its slots; some slots missing (not all) is 'partial'."""
+    unit_of, round_of, worst = _worst_status(result)
+    return {(u, r): _ORDER[w] for u, r, w in zip(unit_of, round_of, worst.tolist(), strict=True)}
 
 
 def _strip_plots(plan: Plan, result: CheckResult, unblind: bool) -> list[dict[str, Any]]:
@@ -168,12 +178,18 @@ def _grouped(findings: list[Any]) -> list[tuple[Any, list[Any]]]:
     return out
 
 
-def _status_counts(status: dict[tuple[str, str], str], plan: Plan) -> dict[str, dict[str, int]]:
-    """Per round, how many units have each status: the map's summary for studies too large to draw."""
+def _status_counts(result: CheckResult, plan: Plan) -> dict[str, dict[str, int]]:
+    """Per round, how many units have each status: the map's summary for studies too large to draw. A unit
+    with no row in a round is missing there."""
     out: dict[str, dict[str, int]] = {r.name: dict.fromkeys(STATUS_COLOURS, 0) for r in plan.rounds}
-    for u in plan.units:
-        for r in plan.rounds:
-            out[r.name][status.get((u.code, r.name), "missing")] += 1
+    unit_of, round_of, worst = _worst_status(result)
+    planned = plan.unit_by_code
+    seen = Counter((r, _ORDER[w]) for u, r, w in zip(unit_of, round_of, worst.tolist(), strict=True) if u in planned)
+    for (r, st), n in seen.items():
+        if r in out:
+            out[r][st] += n
+    for r, counts in out.items():
+        counts["missing"] += len(plan.units) - sum(n for (rnd, _), n in seen.items() if rnd == r)
     return out
 
 
@@ -186,7 +202,7 @@ def report_html(plan: Plan, result: CheckResult, unblind: bool = False) -> str:
     """The human report: summary, findings, completeness map and strip plots (summarised for large studies)."""
     drawn = len(plan.units) <= MAX_MAP_UNITS
     cells, is_grid = map_cells(plan) if drawn else ([], False)
-    status = _unit_status(result)
+    status = _unit_status(result) if drawn else {}
     findings = _grouped(result.findings)
     return (
         template_env()
@@ -197,7 +213,7 @@ def report_html(plan: Plan, result: CheckResult, unblind: bool = False) -> str:
             findings=findings[:MAX_FINDINGS_SHOWN],
             findings_left=len(result.findings) - sum(1 + len(f) for _, f in findings[:MAX_FINDINGS_SHOWN]),
             drawn=drawn,
-            status_counts=None if drawn else _status_counts(status, plan),
+            status_counts=None if drawn else _status_counts(result, plan),
             plots_left_out=len(plan.units) > MAX_PLOT_UNITS,
             rounds=[r.name for r in plan.rounds],
             cells=cells,

@@ -7,6 +7,7 @@ from functools import cached_property
 from typing import Any
 
 import numpy as np
+import pandas as pd
 
 from layout.codes import CodeParts, compact, index_codes, parse_code, serial_width, subsample_width, suggest
 from layout.intake.columns import Columns
@@ -97,6 +98,13 @@ class PlanIndex:
         return {s.code: k for k, s in enumerate(self.plan.slots)}
 
     @cached_property
+    def slot_lookup(self) -> pd.Index:
+        """The slot codes as a pandas index: a column of cells looked up in one call (a hash table in C)."""
+        index = pd.Index(self.slot_codes, dtype=object)
+        index.get_indexer(self.slot_codes[:1])  # its hash table is built on first use: now
+        return index
+
+    @cached_property
     def slot_codes(self) -> np.ndarray:
         """The slot codes in plan order, as an array to pick from."""
         return np.array([s.code for s in self.plan.slots], dtype=object)
@@ -142,7 +150,7 @@ class PlanIndex:
 
     def warm(self) -> None:
         """Build now what a check of returns in columns looks up, while the returns are still being read."""
-        for name in ("slot_number", "slot_codes", "unit_of_slot", "subsample_of_slot", "round_number"):
+        for name in ("slot_number", "slot_lookup", "unit_of_slot", "subsample_of_slot", "round_number"):
             getattr(self, name)
         for name in ("unit", "block", "row", "col", "treatment"):
             self.planned_column(name)

@@ -6,12 +6,12 @@ Run by hand (not part of the test suite):
     python tests/perf/bench.py --big           # also the 1,000,000-slot check
     python tests/perf/bench.py --reps 1 --out bench.json
 
-Every step runs in a fresh Python process, three times by default; the median time and the
-largest peak memory (ru_maxrss of that process) are reported. Ratios are layout's median over
-the baseline's median from the same run, so they hold on any machine. The timed part of each
-step leaves out the imports on both sides (the baseline imports its library, layout the
-modules of the command, before the clock starts); "process s" is the whole process, imports
-and start-up included. `plan` is timed as a whole process, as its target is.
+Every step runs in a fresh Python process, three times by default, its runs alternating with its
+baseline's; the median time and the largest peak memory (ru_maxrss of that process) are
+reported. Ratios are layout's median over the baseline's median from the same run, so they
+hold on any machine. The timed part of each step leaves out the imports on both sides (the
+baseline imports its library, layout the modules of the command, before the clock starts);
+"process s" is the whole process, imports and start-up included. `plan` is timed as a whole process, as its target is.
 """
 
 from __future__ import annotations
@@ -124,6 +124,8 @@ STEPS = {
         "print(time.perf_counter()-t)",
     ),
 }
+
+BASELINE = "-baseline"
 
 RUNNER = """
 import time, resource, sys
@@ -241,17 +243,26 @@ def main() -> int:
             console.print("setting up 100,000 slots (plan, workbook, simulated values, first check)...")
             setup(work, 1000, "1")
         steps = args.only.split(",") if args.only else list(STEPS)
-        for name in (n for n in steps if n in STEPS):
-            what, code = STEPS[name]
-            runs = [run_step(code, work) for _ in range(args.reps)]
-            figures["steps"][name] = {
-                "what": what,
-                "seconds": statistics.median(r[0] for r in runs),
-                "process_seconds": statistics.median(r[1] for r in runs),
-                "peak_mib": max(r[2] for r in runs) / 1024,
-                "runs": [r[0] for r in runs],
-            }
-            console.print(f"  {name}: {figures['steps'][name]['seconds']:.2f} s")
+        chosen = [n for n in steps if n in STEPS]
+        for name in chosen:
+            if name.endswith(BASELINE) and name.removesuffix(BASELINE) in chosen:
+                continue  # run beside its step
+            # a step's runs alternate with its baseline's: a machine that speeds up or slows down during the
+            # run (this one drifts by 20-40% over minutes) then moves both medians alike
+            pair = [name, *[n for n in (name + BASELINE,) if n in chosen]]
+            runs: dict[str, list[tuple[float, float, int]]] = {n: [] for n in pair}
+            for _ in range(args.reps):
+                for n in pair:
+                    runs[n].append(run_step(STEPS[n][1], work))
+            for n in pair:
+                figures["steps"][n] = {
+                    "what": STEPS[n][0],
+                    "seconds": statistics.median(r[0] for r in runs[n]),
+                    "process_seconds": statistics.median(r[1] for r in runs[n]),
+                    "peak_mib": max(r[2] for r in runs[n]) / 1024,
+                    "runs": [r[0] for r in runs[n]],
+                }
+                console.print(f"  {n}: {figures['steps'][n]['seconds']:.2f} s")
         if not args.only or "pdf" in steps:
             figures["pdf_labels_per_second"] = pdf_rates(work, args.reps)
         if args.big:

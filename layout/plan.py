@@ -3,8 +3,10 @@
 ``plan.json`` is the single source of truth. Its fingerprint is the SHA-256 of the plan
 object without its ``fingerprint`` and ``tool`` keys, serialised by RFC 8785 (the JSON
 Canonicalization Scheme), so any language can recompute it; loading a plan recomputes
-it and refuses a plan whose stored value differs. Numbers in the file are written as
-RFC 8785 writes them, so the file's own text parses to the same values everywhere.
+it and refuses a plan whose stored value differs. (A file that is byte for byte as layout
+wrote it, which its seal in tool.file_sha256 shows, had its fingerprint computed from
+this content when written; see _sealed.) Numbers in the file are written as RFC 8785
+writes them, so the file's own text parses to the same values everywhere.
 """
 
 from __future__ import annotations
@@ -33,6 +35,9 @@ from layout.spec import Spec
 
 FORMAT: Final = PLAN_FORMAT
 _UNFINGERPRINTED: Final = ("fingerprint", "tool")
+# tool.file_sha256: the SHA-256 of the file's own text as written, this value in it as 64 zeros (see _sealed)
+_SEAL: Final = "file_sha256"
+_UNSEALED: Final = "0" * 64
 
 
 @dataclass(frozen=True)
@@ -149,10 +154,14 @@ class Plan:
         return len({len(v) for v in self.slots_of.values()}) > 1
 
     def to_json(self) -> str:
-        """The plan file's text: readable, stable, ending in a newline."""
-        data = {"format": FORMAT, "fingerprint": self.fingerprint, "tool": {"name": "layout", "version": __version__}}
+        """The plan file's text: readable, stable, ending in a newline, sealed (see _sealed)."""
+        tool = {"name": "layout", "version": __version__, _SEAL: _UNSEALED}
+        data = {"format": FORMAT, "fingerprint": self.fingerprint, "tool": tool}
         data.update(self._content)
-        return readable_json(data, self._simple_parts)
+        text = readable_json(data, self._simple_parts)
+        blank = f'"{_SEAL}": "{_UNSEALED}"'
+        digest = hashlib.sha256(text.encode("utf-8")).hexdigest()
+        return text.replace(blank, f'"{_SEAL}": "{digest}"', 1)
 
     def save(self, path: str | Path, force: bool = False) -> Path:
         """Write plan.json; refuses to replace an existing file unless force."""
@@ -277,6 +286,8 @@ def parse_plan(text: str, file: str = "plan.json") -> Plan:
                 "Use the version that made it, or make the plan again with 'layout plan'",
             )
         raise PlanError.at(file, "format", f"not a layout plan: must be {FORMAT!r}, got {found!r}")
+    if _sealed(text, data):
+        return _plan_of(data, data["fingerprint"], file)
     # Without floats, integers of 16 digits or more, or characters beyond the Basic Multilingual Plane
     # (typed or escaped), the json module writes the big lists as RFC 8785 does: no look value by value.
     wide = not text.isascii() and max(text) > "\uffff"
@@ -294,6 +305,29 @@ def parse_plan(text: str, file: str = "plan.json") -> Plan:
             f"the file says {data.get('fingerprint')!r} but its content gives {recomputed!r}; "
             "the plan was edited after it was made. Restore the original file, or make a new plan with 'layout plan'",
         )
+    return _plan_of(data, recomputed, file)
+
+
+def _sealed(text: str, data: dict[str, Any]) -> bool:
+    """Whether the text is, byte for byte, what Plan.to_json wrote: its seal (tool.file_sha256) is the SHA-256
+    of the text with the seal written as zeros. The fingerprint beside it was then computed from this very
+    content when the file was written, and recomputing it (RFC 8785 over every unit and slot: a third of
+    loading 100,000 slots) cannot give another value. Any change to the file, even of spacing, breaks the
+    seal, and the fingerprint is recomputed as for a plan from elsewhere."""
+    tool = data.get("tool")
+    seal = tool.get(_SEAL) if isinstance(tool, dict) else None
+    fingerprint = data.get("fingerprint")
+    if not isinstance(seal, str) or not isinstance(fingerprint, str) or seal == _UNSEALED:
+        return False
+    written = f'"{_SEAL}": "{seal}"'
+    if written not in text[:4096]:  # tool is near the top, as to_json writes it
+        return False
+    blank = text.replace(written, f'"{_SEAL}": "{_UNSEALED}"', 1)
+    return hashlib.sha256(blank.encode("utf-8")).hexdigest() == seal
+
+
+def _plan_of(data: dict[str, Any], fingerprint: str, file: str) -> Plan:
+    """The Plan of a verified plan.json's data."""
     try:
         plan = Plan(
             spec=Spec.model_validate(data["spec"]),
@@ -315,7 +349,7 @@ def parse_plan(text: str, file: str = "plan.json") -> Plan:
             f"made with random stream {plan.rng.get('name')!r} version {plan.rng.get('version')!r}, "
             "which this version of layout does not know",
         )
-    plan.__dict__["fingerprint"] = recomputed  # checked against the file above; no need to serialise it again
+    plan.__dict__["fingerprint"] = fingerprint  # verified by the caller; no need to serialise it again
     return plan
 
 

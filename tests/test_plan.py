@@ -308,3 +308,49 @@ def test_a_plan_whose_records_lack_or_add_fields_is_refused(part: str, edit: Any
     with pytest.raises(PlanError, match="not a complete layout plan") as caught:
         parse_plan(json.dumps(data), "edited.json")
     assert "\n" not in str(caught.value)
+
+
+class TestSeal:
+    """A plan file as layout wrote it carries a seal (tool.file_sha256): the SHA-256 of its own text with the
+    seal as zeros, recomputed here with hashlib alone. Sealed, it loads without re-serialising; any change to
+    the bytes breaks the seal, and the fingerprint is recomputed as for any other file."""
+
+    @pytest.fixture()
+    def saved(self, tmp_path: Path) -> Path:
+        return make_plan(load_spec(EXAMPLE)).save(tmp_path / "plan.json")
+
+    def test_the_seal_is_the_digest_of_the_file_with_zeros_in_its_place(self, saved: Path) -> None:
+        text = saved.read_text(encoding="utf-8")
+        seal = json.loads(text)["tool"]["file_sha256"]
+        blank = text.replace(seal, "0" * 64, 1)
+        assert hashlib.sha256(blank.encode("utf-8")).hexdigest() == seal
+
+    def test_a_sealed_plan_loads_without_recomputing(self, saved: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+        import layout.plan
+
+        expected = json.loads(saved.read_text(encoding="utf-8"))["fingerprint"]
+        monkeypatch.setattr(layout.plan, "canonical", lambda *a: pytest.fail("re-serialised a sealed plan"))
+        assert load_plan(saved).fingerprint == expected
+
+    def test_an_edit_breaks_the_seal_and_is_refused(self, saved: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+        import layout.plan
+
+        text = saved.read_text(encoding="utf-8")
+        saved.write_text(text.replace('"subsample": 1}', '"subsample": 2}', 1), encoding="utf-8")
+        calls = []
+        real = layout.plan.canonical
+        monkeypatch.setattr(layout.plan, "canonical", lambda *a: calls.append(1) or real(*a))
+        with pytest.raises(PlanError, match="edited after it was made"):
+            load_plan(saved)
+        assert calls  # the fingerprint was recomputed
+
+    def test_respaced_or_resealed_with_another_version_still_loads(self, saved: Path) -> None:
+        """Spacing changed (an editor re-indenting it) or the tool part edited: the seal no longer holds, the
+        recomputed fingerprint does (neither is part of the content)."""
+        data = json.loads(saved.read_text(encoding="utf-8"))
+        expected = data["fingerprint"]
+        saved.write_text(json.dumps(data, indent=4), encoding="utf-8")
+        assert load_plan(saved).fingerprint == expected
+        data["tool"]["version"] = "0.0.1"
+        saved.write_text(json.dumps(data), encoding="utf-8")
+        assert load_plan(saved).fingerprint == expected

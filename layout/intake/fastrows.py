@@ -89,7 +89,6 @@ class FastRows:
         plan = idx.plan
         self.file = table.file
         self.code_at = cols.structure["code"]
-        self.slots = idx.slot_by_code
         self.round_at = cols.structure.get("round")
         self.rounds = {r.name: r.name for r in plan.rounds}
         self.only_round = plan.rounds[0].name if len(plan.rounds) == 1 else None
@@ -118,7 +117,7 @@ class FastRows:
         """The row's entry when it passes every quick test, else None."""
         if len(cells) < self.width or number in self.formula_rows:
             return None
-        slot = self.slots.get(cells[self.code_at])
+        slot = self._idx.slot_by_code.get(cells[self.code_at])
         if slot is None:
             return None
         got = self.structure_cells(cells)

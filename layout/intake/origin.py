@@ -35,7 +35,7 @@ def _mostly_planned(table: ReturnedTable, cols: Columns, idx: PlanIndex) -> bool
     if i is None:
         return False
     enough = (1 - SHARE) * len(table.rows)
-    exact = idx.slot_by_code
+    exact = idx.slot_number
     known = 0
     for _, cells in table.rows:
         if i < len(cells) and cells[i] in exact:

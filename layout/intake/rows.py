@@ -63,7 +63,6 @@ class PlanIndex:
 
     def __init__(self, plan: Plan) -> None:
         self.plan = plan
-        self.slot_by_code = {s.code: s for s in plan.slots}
         self.rounds = {r.name.lower(): r.name for r in plan.rounds}
         self.responses = {r.name: r for r in plan.spec.response}
         self.reasons = {m.lower(): m for m in plan.spec.collection.missing_reasons}
@@ -71,6 +70,11 @@ class PlanIndex:
         self.lengths = code_lengths(plan)
         self._planned_columns: dict[str, tuple[np.ndarray, np.ndarray]] = {}
         self._planned_rows: dict[tuple[str, ...], Any] = {}
+
+    @cached_property
+    def slot_by_code(self) -> dict[str, Slot]:
+        """Slots by code: for rows checked one by one (rows in columns use slot_lookup)."""
+        return {s.code: s for s in self.plan.slots}
 
     # the indexes of codes as people type them are needed only for a row whose code is not exact: made then
     @cached_property

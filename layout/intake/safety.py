@@ -184,19 +184,24 @@ def _check_part(path: Path, z: zipfile.ZipFile, info: zipfile.ZipInfo, limits: L
         seen += len(block)
         if seen > info.file_size:
             raise _refuse(path, f"part {info.filename} unpacks larger than its zip entry says; refused as unsafe")
-        window = tail + block
-        # "!" first (one memchr pass; most blocks of a sheet have none), then "<!" in UTF-8 or either UTF-16
-        # (two scans, not nine; a two-byte needle starting with "<" is slow in XML); comments and CDATA also
-        # start with "<!", so only then the nine marks
-        if b"!" in window and (b"<!" in window or b"<\x00!" in window) and any(mark in window for mark in _MARKS):
-            raise _refuse(
-                path,
-                f"part {info.filename} declares a document type (DTD); workbooks never need one and it can "
-                "hide entity attacks, so the file is refused; save it again from Excel or LibreOffice",
-            )
-        formula = formula or (sheet and _FORMULA.search(window) is not None)
-        tail = window[-_OVERLAP:]
+        # the block, and the seam with the block before (a mark cut in two), searched apart: no copy of the block
+        for window in (tail + block[:_OVERLAP], block):
+            if _declares_dtd(window):
+                raise _refuse(
+                    path,
+                    f"part {info.filename} declares a document type (DTD); workbooks never need one and it can "
+                    "hide entity attacks, so the file is refused; save it again from Excel or LibreOffice",
+                )
+            formula = formula or (sheet and _FORMULA.search(window) is not None)
+        tail = block[-_OVERLAP:]
     return formula
+
+
+def _declares_dtd(window: bytes) -> bool:
+    # "!" first (one memchr pass; most blocks of a sheet have none), then "<!" in UTF-8 or either UTF-16
+    # (two scans, not nine; a two-byte needle starting with "<" is slow in XML); comments and CDATA also
+    # start with "<!", so only then the nine marks
+    return b"!" in window and (b"<!" in window or b"<\x00!" in window) and any(mark in window for mark in _MARKS)
 
 
 _BLOCK: Final = MB  # unpacked a megabyte at a time: few zlib calls, and the block stays in cache

@@ -5,7 +5,9 @@ from __future__ import annotations
 import csv
 import io
 import re
+from collections.abc import Iterable
 from functools import lru_cache
+from itertools import repeat
 from typing import Any, Final
 
 import numpy as np
@@ -252,9 +254,26 @@ def tidy_csv(frame: pd.DataFrame, plan: Plan | None = None) -> str:
     columns = [_series_text(frame[c]) for c in frame.columns[skip:]]
     if lead:
         tail = [_series_text(frame[c], len(lead)) for c in frame.columns[:skip]]
-        lead = lead + list(map(",".join, zip(*tail, strict=True)))  # rows after the plan's: unplaced ones
+        lead = lead + list(_joined(tail, len(frame) - len(lead)))  # rows after the plan's: unplaced ones
         columns.insert(0, lead)
-    return header + "\n".join(map(",".join, zip(*columns, strict=True))) + "\n"
+    return header + "\n".join(_joined(columns, len(frame))) + "\n"
+
+
+Text = str | list[str]  # a column's cells as CSV text; one str when every cell has that text
+
+
+def _joined(columns: list[Text], rows: int) -> Iterable[str]:
+    """Each row's cells joined by commas. Neighbouring columns of one text each are joined once, not per row
+    (a clean return's reason, note, status and file columns)."""
+    merged: list[Text] = []
+    for column in columns:
+        if isinstance(column, str) and merged and isinstance(merged[-1], str):
+            merged[-1] = merged[-1] + "," + column
+        else:
+            merged.append(column)
+    if all(isinstance(c, str) for c in merged):
+        return [",".join(merged)] * rows  # type: ignore[arg-type]
+    return map(",".join, zip(*[repeat(c, rows) if isinstance(c, str) else c for c in merged], strict=True))
 
 
 def _starts_with_plan(frame: pd.DataFrame, plan: Plan) -> bool:
@@ -274,8 +293,7 @@ def _starts_with_plan(frame: pd.DataFrame, plan: Plan) -> bool:
 def _plan_text(plan: Plan) -> list[str]:
     """Each tidy row's plan columns as CSV text, joined: made while a returned workbook is parsed."""
     part = _plan_frame(plan)
-    columns = [_series_text(part[c]) for c in part.columns]
-    return list(map(",".join, zip(*columns, strict=True)))
+    return list(_joined([_series_text(part[c]) for c in part.columns], len(part)))
 
 
 def _quoting_chars() -> frozenset[str]:
@@ -308,10 +326,12 @@ def _signed_zero(values: set[Any]) -> bool:
     return any(type(v) is float and v == 0.0 for v in values)
 
 
-def _series_text(column: pd.Series, start: int = 0) -> list[str]:
+def _series_text(column: pd.Series, start: int = 0) -> Text:
     """A frame column's cells from row `start` on, as CSV text; whole numbers picked from a table of their text."""
     cells = column.array[start:]
     if isinstance(cells, pd.arrays.IntegerArray) and len(cells):
+        if cells.isna().all():
+            return ""
         numbers = cells.to_numpy(dtype=np.int64, na_value=0)
         top = int(numbers.max())
         if numbers.min() >= 0 and top < max(_SMALL_TABLE, 2 * len(numbers)):  # a table no larger than the column
@@ -338,12 +358,16 @@ def _whole_texts(size: int) -> np.ndarray:
     return out
 
 
-def _column_text(values: np.ndarray) -> list[str]:
+def _column_text(values: np.ndarray) -> Text:
     """One column's cells (None for a blank) as text, in C loops (map, a regex over the joined text), not a
     Python call per cell."""
     blank = np.equal(values, None)
+    if blank.all():
+        return ""
     filled = values[~blank].tolist() if blank.any() else values.tolist()
     types = set(map(type, filled))
+    if not blank.any() and filled[0] == filled[-1] and type(filled[0]) is str and len(set(filled)) == 1:
+        return _csv_text(filled[0])  # one text throughout (a status, a file name)
     if types == {str}:
         quote = _QUOTE.search("\x00".join(filled)) is not None
         text = [_csv_text(v) for v in filled] if quote else filled

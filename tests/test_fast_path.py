@@ -357,7 +357,40 @@ def test_status_counts_equal_a_count_unit_by_unit(statuses: list[str]) -> None:
     for u in units:
         for r in plan.rounds:
             expected[r.name][by_hand.get((u.code, r.name), "missing")] += 1
-    assert _status_counts(CheckResult([], tidy, {}), plan) == expected  # type: ignore[arg-type]
+    with pytest.MonkeyPatch.context() as mp:  # a stand-in plan: the table's own units and rounds are coded
+        mp.setattr("layout.intake.report.plan_row_codes", lambda *_: None)
+        assert _status_counts(CheckResult([], tidy, {}), plan) == expected  # type: ignore[arg-type]
+
+
+def _counts_by_hand(plan: Plan, tidy: pd.DataFrame) -> dict[str, dict[str, int]]:
+    from layout.intake.report import STATUS_COLOURS
+
+    by_hand = _unit_status_by_hand(tidy)
+    out = {r.name: dict.fromkeys(STATUS_COLOURS, 0) for r in plan.rounds}
+    for u in plan.units:
+        for r in plan.rounds:
+            out[r.name][by_hand.get((u.code, r.name), "missing")] += 1
+    return out
+
+
+def test_unit_status_of_real_checks(plan: Plan, filled: Path, tmp_path: Path) -> None:
+    """The map's statuses and counts from the plan's rows coded once (a return of exactly the plan's rows) equal
+    those from the table's own columns and the slot-by-slot rule: clean, with rows deleted, with conflicts and
+    unplaced rows."""
+    from layout.intake.report import _status_counts, _unit_status
+    from layout.intake.tidy import plan_row_codes
+
+    values = tc.published_fill(plan)
+    fewer = tc.edited(filled, tmp_path / "f.xlsx", lambda ws, _col: ws.delete_rows(3, 5))
+    changed = tc.edited(filled, tmp_path / "c.xlsx", tc._append_copy(tc._changed_value)(plan, values))
+    odd = tc.edited(filled, tmp_path / "o.xlsx", tc._append_copy(tc._foreign_code)(plan, values))
+    coded = []
+    for paths in ([filled], [fewer], [changed, odd]):
+        result = check_returns(plan, paths)
+        coded.append(plan_row_codes(result.tidy, plan) is not None)
+        assert _unit_status(result, plan) == _unit_status(result) == _unit_status_by_hand(result.tidy)
+        assert _status_counts(result, plan) == _counts_by_hand(plan, result.tidy)
+    assert coded == [True, True, False]  # the unplaced rows of the last take the general way
 
 
 def _outliers_by_hand(values: dict[str, list[tuple[str, float]]], threshold: float) -> list[Any]:

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import json
-from collections import Counter
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Final
 
@@ -13,7 +13,7 @@ import pandas as pd
 from layout.files import write_all
 from layout.intake.check import CheckResult
 from layout.intake.proposals import proposals_csv
-from layout.intake.tidy import tidy_csv
+from layout.intake.tidy import plan_row_codes, tidy_csv
 from layout.meta import __version__
 from layout.plan import Plan
 from layout.render import BLOCK_COLOURS, map_cells, page_context, template_env
@@ -69,16 +69,33 @@ def report_json(result: CheckResult) -> str:
 _ORDER: Final = ("ok", "declared-missing", "partial", "conflict", "error", "missing")  # better to worse
 
 
-def _worst_status(result: CheckResult) -> tuple[list[str], list[str], np.ndarray]:
-    """Per (unit, round) with a row in the tidy table: the unit, the round and the worst status of its slots
-    (as a place in _ORDER); some slots missing (not all) is 'partial'."""
-    tidy = result.tidy[result.tidy["status"] != "unmatched"]
+@dataclass
+class _Worst:
+    """Per (unit, round) with a row in the tidy table, the worst status of its slots (a place in _ORDER)."""
+
+    unit_names: np.ndarray
+    round_names: np.ndarray
+    unit: np.ndarray  # each pair's unit, a place in unit_names
+    round: np.ndarray  # each pair's round, a place in round_names
+    worst: np.ndarray
+
+
+def _worst_status(result: CheckResult, plan: Plan | None = None) -> _Worst:
+    """The worst status of each (unit, round)'s slots; some slots missing (not all) is 'partial'. Pairs in the
+    order first seen. plan: the plan of the check, whose rows' units and rounds were coded while it was read."""
+    tidy = result.tidy
+    coded = plan_row_codes(tidy, plan) if plan is not None else None
+    if coded is None:
+        tidy = tidy[tidy["status"] != "unmatched"]
+        units, unit_names = pd.factorize(tidy["unit"])
+        rounds, round_names = pd.factorize(tidy["round"])
+        coded = units, np.asarray(unit_names, dtype=object), rounds, np.asarray(round_names, dtype=object)
+    units, unit_names, rounds, round_names = coded
     if tidy.empty:
-        return [], [], np.zeros(0, dtype=np.int64)
+        empty = np.zeros(0, dtype=np.int64)
+        return _Worst(unit_names, round_names, empty, empty, empty)
     status, statuses = pd.factorize(tidy["status"])  # integer codes: a pandas map over text costs 20 ms here
     rank = np.array([_ORDER.index(s) for s in statuses], dtype=np.int64)[status]
-    units, unit_names = pd.factorize(tidy["unit"])
-    rounds, round_names = pd.factorize(tidy["round"])
     group, firsts = pd.factorize(units * len(round_names) + rounds)  # (unit, round) pairs, first seen first
     missing, partial = _ORDER.index("missing"), _ORDER.index("partial")
     worst = np.full(len(firsts), -1, dtype=np.int64)
@@ -90,15 +107,15 @@ def _worst_status(result: CheckResult) -> tuple[list[str], list[str], np.ndarray
     # slots missing beside present ones count as 'partial', and the worst of those and the rest is the unit's
     mixed = (worst == missing) & (least < missing)
     worst = np.where(mixed, np.maximum(kept, partial), worst)
-    unit_of = np.asarray(unit_names, dtype=object)[firsts // len(round_names)].tolist()
-    round_of = np.asarray(round_names, dtype=object)[firsts % len(round_names)].tolist()
-    return unit_of, round_of, worst
+    return _Worst(unit_names, round_names, firsts // len(round_names), firsts % len(round_names), worst)
 
 
-def _unit_status(result: CheckResult) -> dict[tuple[str, str], str]:
+def _unit_status(result: CheckResult, plan: Plan | None = None) -> dict[tuple[str, str], str]:
     """(unit, round) → the worst status of its slots; some slots missing (not all) is 'partial'."""
-    unit_of, round_of, worst = _worst_status(result)
-    return {(u, r): _ORDER[w] for u, r, w in zip(unit_of, round_of, worst.tolist(), strict=True)}
+    w = _worst_status(result, plan)
+    unit_of = w.unit_names[w.unit].tolist()
+    round_of = w.round_names[w.round].tolist()
+    return {(u, r): _ORDER[k] for u, r, k in zip(unit_of, round_of, w.worst.tolist(), strict=True)}
 
 
 def _strip_plots(plan: Plan, result: CheckResult, unblind: bool) -> list[dict[str, Any]]:
@@ -182,14 +199,16 @@ def _status_counts(result: CheckResult, plan: Plan) -> dict[str, dict[str, int]]
     """Per round, how many units have each status: the map's summary for studies too large to draw. A unit
     with no row in a round is missing there."""
     out: dict[str, dict[str, int]] = {r.name: dict.fromkeys(STATUS_COLOURS, 0) for r in plan.rounds}
-    unit_of, round_of, worst = _worst_status(result)
-    planned = plan.unit_by_code
-    seen = Counter((r, _ORDER[w]) for u, r, w in zip(unit_of, round_of, worst.tolist(), strict=True) if u in planned)
-    for (r, st), n in seen.items():
-        if r in out:
-            out[r][st] += n
-    for r, counts in out.items():
-        counts["missing"] += len(plan.units) - sum(n for (rnd, _), n in seen.items() if rnd == r)
+    w = _worst_status(result, plan)
+    planned = np.array([u in plan.unit_by_code for u in w.unit_names.tolist()], dtype=bool)[w.unit]
+    for k, name in enumerate(w.round_names.tolist()):
+        if name not in out:
+            continue
+        counts = np.bincount(w.worst[planned & (w.round == k)], minlength=len(_ORDER))
+        for status, n in zip(_ORDER, counts.tolist(), strict=True):
+            out[name][status] += n
+    for counts in out.values():
+        counts["missing"] += len(plan.units) - sum(counts.values())
     return out
 
 
@@ -202,7 +221,7 @@ def report_html(plan: Plan, result: CheckResult, unblind: bool = False) -> str:
     """The human report: summary, findings, completeness map and strip plots (summarised for large studies)."""
     drawn = len(plan.units) <= MAX_MAP_UNITS
     cells, is_grid = map_cells(plan) if drawn else ([], False)
-    status = _unit_status(result) if drawn else {}
+    status = _unit_status(result, plan) if drawn else {}
     findings = _grouped(result.findings)
     return (
         template_env()

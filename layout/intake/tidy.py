@@ -169,11 +169,28 @@ def _plan_frame(plan: Plan) -> pd.DataFrame:
     return pd.DataFrame(_plan_part(plan)[1])
 
 
+def plan_row_codes(frame: pd.DataFrame, plan: Plan) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray] | None:
+    """When frame holds exactly the plan's rows, as tidy_table makes them (no unplaced rows after them): each
+    row's unit and round as places in the unit and round names given beside them (made once per plan)."""
+    if len(frame) != len(_plan_frame(plan)) or not _starts_with_plan(frame, plan):
+        return None
+    return _plan_row_codes(plan)
+
+
+@lru_cache(maxsize=2)
+def _plan_row_codes(plan: Plan) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    part = _plan_frame(plan)
+    units, unit_names = pd.factorize(part["unit"])
+    rounds, round_names = pd.factorize(part["round"])
+    return units, np.asarray(unit_names, dtype=object), rounds, np.asarray(round_names, dtype=object)
+
+
 def warm_tidy(plan: Plan) -> None:
     """Make the plan's part of the tidy table, and its text, now, while the returns are still being read."""
     _plan_frame(plan)
     _whole_texts(_table_size(len(plan.slots) * len(plan.rounds) + 64))  # the spreadsheet rows of one return
     _plan_text(plan)
+    _plan_row_codes(plan)
 
 
 def _source_file(m: Merged) -> str | None:

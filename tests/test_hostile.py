@@ -108,8 +108,9 @@ def _date_out_of_range(good: Path, target: Path) -> Path:
 def _patched(good: Path, target: Path, part: str, where: str) -> Path:
     """The workbook with one part's zip record made inconsistent, as a bad copy or a forged file would be
     (layout of the records: PKWARE APPNOTE.TXT, sections 4.3.7 and 4.3.12):
-    'crc' changes the CRC-32 the directory gives, 'data' overwrites packed bytes in the middle of the part,
-    'size' makes the directory's unpacked size a tenth of the real one."""
+    'method' names another compression method, 'crc' changes the CRC-32 the directory gives, 'data'
+    overwrites packed bytes in the middle of the part, 'size' makes the directory's unpacked size a tenth
+    of the real one."""
     data = bytearray(good.read_bytes())
     with zipfile.ZipFile(good) as z:
         info = z.getinfo(part)
@@ -117,7 +118,9 @@ def _patched(good: Path, target: Path, part: str, where: str) -> Path:
     central = next(
         k for k in range(len(data)) if data.startswith(b"PK\x01\x02", k) and data[k + 46 : k + 46 + len(name)] == name
     )
-    if where == "crc":
+    if where == "method":  # deflated data said to be bzip2 (method 12), whose reader raises OSError on it
+        data[central + 10 : central + 12] = (12).to_bytes(2, "little")
+    elif where == "crc":
         data[central + 16 : central + 20] = ((info.CRC + 1) % 2**32).to_bytes(4, "little")
     elif where == "size":
         data[central + 24 : central + 28] = (info.file_size // 10).to_bytes(4, "little")
@@ -169,6 +172,7 @@ CASES: dict[str, tuple[str, Callable[[Path, Path], Path | bytes], str]] = {
     ),  # fmt: skip
     "date-out-of-range": ("d.xlsx", _date_out_of_range, "out of any range"),
     "bad-crc": ("crc.xlsx", lambda g, t: _patched(g, t, "xl/worksheets/sheet1.xml", "crc"), "damaged"),
+    "wrong-method": ("m.xlsx", lambda g, t: _patched(g, t, "xl/worksheets/sheet1.xml", "method"), "cannot be unpacked"),
     "bad-packed-data": ("pk.xlsx", lambda g, t: _patched(g, t, "xl/worksheets/sheet1.xml", "data"), "damaged"),
     "larger-than-declared": (
         "big.xlsx",

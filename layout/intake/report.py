@@ -66,7 +66,7 @@ def report_json(result: CheckResult) -> str:
     return json.dumps(data, indent=1, ensure_ascii=False, default=str) + "\n"
 
 
-_ORDER: Final = ("ok", "declared-missing", "partial", "conflict", "error", "missing")  # better to worse
+_ORDER: Final = tuple(STATUS_COLOURS)  # listed better to worse
 
 
 @dataclass

@@ -9,6 +9,7 @@ message that says what it is and what to do.
 
 from __future__ import annotations
 
+import lzma
 import re
 import struct
 import zipfile
@@ -119,13 +120,21 @@ def inspect_zip(path: Path, limits: Limits = DEFAULT_LIMITS) -> bool:
         raise _refuse(
             path, "is a damaged workbook (cut short while copying or saving?); save or copy it again"
         ) from None
-    except (zlib.error, EOFError):
+    except (zlib.error, EOFError, lzma.LZMAError, OSError):  # bz2 and lzma say a bad stream with these
         raise _refuse(path, "is a damaged workbook: a part cannot be unpacked; save or copy it again") from None
     except NotImplementedError as exc:
         raise _refuse(path, f"uses a zip feature no reader here supports ({exc}); save it again as .xlsx") from None
 
 
-_FAILURES: Final = (UnreadableFile, zipfile.BadZipFile, zlib.error, EOFError, NotImplementedError)
+_FAILURES: Final = (
+    UnreadableFile,
+    zipfile.BadZipFile,
+    zlib.error,
+    EOFError,
+    NotImplementedError,
+    lzma.LZMAError,
+    OSError,
+)
 Failure = tuple[int, Exception]  # a part's place in the zip, and why it was refused
 
 

@@ -347,13 +347,14 @@ def _series_text(column: pd.Series, start: int = 0) -> Text:
     """A frame column's cells from row `start` on, as CSV text; whole numbers picked from a table of their text."""
     cells = column.array[start:]
     if isinstance(cells, pd.arrays.IntegerArray) and len(cells):
-        if cells.isna().all():
+        blank = cells.isna()
+        if blank.all():
             return ""
         numbers = cells.to_numpy(dtype=np.int64, na_value=0)
         top = int(numbers.max())
         if numbers.min() >= 0 and top < max(_SMALL_TABLE, 2 * len(numbers)):  # a table no larger than the column
             text = _whole_texts(_table_size(top))[numbers]
-            text[cells.isna()] = ""
+            text[blank] = ""
             return text.tolist()
     return _column_text(cells.to_numpy(dtype=object, na_value=None))
 
